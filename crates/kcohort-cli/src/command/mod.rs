@@ -1,0 +1,35 @@
+//! The commands of `kcohort` and their arguments.
+
+mod ingest;
+mod stats;
+
+use clap::{Parser, Subcommand};
+
+#[derive(Debug, Parser)]
+#[command(
+    name = "kcohort",
+    version,
+    about = "High-potassium episodes from de-identified hospital lab and medication tables",
+    long_about = "kcohort turns de-identified hospital lab and medication extracts into counts, rates and \
+cohorts of high-potassium (hyperkalemia) episodes. Its output supports quality improvement and research; \
+it is not for decisions about individual patients, and it defers to local policy and licensed practice."
+)]
+pub struct Cli {
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Check every row of an extract and write it into a Parquet store (rejects kept with reasons).
+    Ingest(ingest::IngestArgs),
+    /// Statistics on any table of your own (CSV or Parquet): proportions, rates, ratios, survival, Cox, charts.
+    Stats(stats::StatsArgs),
+}
+
+pub fn run(cli: Cli) -> anyhow::Result<()> {
+    match cli.command {
+        Command::Ingest(args) => ingest::run(args),
+        Command::Stats(args) => stats::run(args),
+    }
+}

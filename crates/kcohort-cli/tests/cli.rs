@@ -1,0 +1,147 @@
+//! The `kcohort` binary as a user runs it: exit codes, what it prints, and a real process kill in
+//! the middle of a commit.
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+fn kcohort() -> Command {
+    Command::new(env!("CARGO_BIN_EXE_kcohort"))
+}
+
+fn base_fixture() -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("../../tests/fixtures/ingest/_base")
+}
+
+fn ingest(extract: &Path, store: &Path, extra: &[&str]) -> Output {
+    kcohort()
+        .arg("ingest")
+        .arg(extract)
+        .arg("--store")
+        .arg(store)
+        .args([
+            "--site-timezone",
+            "Europe/Berlin",
+            "--extract-end",
+            "2026-06-30T23:59",
+        ])
+        .args(extra)
+        .output()
+        .unwrap()
+}
+
+fn text(bytes: &[u8]) -> String {
+    String::from_utf8_lossy(bytes).into_owned()
+}
+
+#[test]
+fn ingest_prints_a_reconciled_summary_and_no_patient_level_values() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = ingest(&base_fixture(), &dir.path().join("store"), &[]);
+    assert!(out.status.success(), "{}", text(&out.stderr));
+    let stdout = text(&out.stdout);
+    assert!(stdout.contains("lab_results"), "{stdout}");
+    assert!(stdout.contains("read = accepted + rejected"), "{stdout}");
+    assert!(!stdout.contains("DOES NOT RECONCILE"), "{stdout}");
+    let all = stdout + &text(&out.stderr);
+    for value in ["P1", "L2", "5.9", "Ward 4 North", "spironolactone"] {
+        assert!(
+            !all.contains(value),
+            "printed a row-level value {value:?}:\n{all}"
+        );
+    }
+}
+
+#[test]
+fn rejected_rows_are_counted_by_reason_without_their_values() {
+    let dir = tempfile::tempdir().unwrap();
+    let extract = dir.path().join("extract");
+    std::fs::create_dir_all(&extract).unwrap();
+    for e in std::fs::read_dir(base_fixture()).unwrap() {
+        let e = e.unwrap();
+        std::fs::copy(e.path(), extract.join(e.file_name())).unwrap();
+    }
+    let labs = extract.join("lab_results.csv");
+    let mut content = std::fs::read_to_string(&labs).unwrap();
+    content.push_str("L9,P1,E1,2823-3,13.7,mmol/L,2026-03-05T06:00,,\n");
+    std::fs::write(&labs, content).unwrap();
+    let out = ingest(&extract, &dir.path().join("store"), &[]);
+    assert!(out.status.success(), "{}", text(&out.stderr));
+    let stdout = text(&out.stdout);
+    assert!(stdout.contains("impossible_value"), "{stdout}");
+    assert!(
+        !stdout.contains("13.7") && !stdout.contains("L9"),
+        "{stdout}"
+    );
+}
+
+#[test]
+fn user_errors_exit_with_1_and_say_what_to_fix() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = kcohort()
+        .args(["ingest"])
+        .arg(base_fixture())
+        .arg("--store")
+        .arg(dir.path().join("store"))
+        .args(["--site-timezone", "Mars/Olympus"])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(1));
+    let stderr = text(&out.stderr);
+    assert!(
+        stderr.contains("IANA") && stderr.contains("+01:00"),
+        "{stderr}"
+    );
+
+    let missing = kcohort()
+        .args(["ingest", "no/such/folder", "--store"])
+        .arg(dir.path().join("s"))
+        .output()
+        .unwrap();
+    assert_eq!(missing.status.code(), Some(1));
+    assert!(
+        text(&missing.stderr).contains("does not exist"),
+        "{}",
+        text(&missing.stderr)
+    );
+}
+
+#[test]
+fn a_process_killed_during_the_commit_leaves_the_previous_store_intact() {
+    let dir = tempfile::tempdir().unwrap();
+    let store = dir.path().join("store");
+    assert!(ingest(&base_fixture(), &store, &[]).status.success());
+    let manifest_before = std::fs::read(store.join("manifest.json")).unwrap();
+    for step in ["parts-written", "parts-renamed", "manifest-written"] {
+        let out = kcohort()
+            .env("KCOHORT_FAIL_AT", format!("{step}:abort"))
+            .arg("ingest")
+            .arg(base_fixture())
+            .arg("--store")
+            .arg(&store)
+            .args([
+                "--site-timezone",
+                "Europe/Berlin",
+                "--extract-end",
+                "2026-07-31T23:59",
+                "--replace",
+            ])
+            .output()
+            .unwrap();
+        assert!(
+            !out.status.success(),
+            "{step}: the process should have been aborted"
+        );
+        assert_eq!(
+            out.status.code(),
+            None,
+            "{step}: killed by a signal, not an exit"
+        );
+        assert_eq!(
+            std::fs::read(store.join("manifest.json")).unwrap(),
+            manifest_before,
+            "{step}"
+        );
+        let verify = kcohort_ingest::store::verify(&store).unwrap();
+        assert!(verify.is_empty(), "{step}: {verify:?}");
+    }
+}

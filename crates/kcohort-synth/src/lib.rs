@@ -1,0 +1,1 @@
+//! kcohort-synth (being written).
