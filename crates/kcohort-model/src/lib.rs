@@ -13,6 +13,7 @@ pub mod manifest;
 pub mod reject;
 pub mod store_layout;
 pub mod store_schema;
+pub mod study;
 
 pub use analyte::{Analyte, UnitConversion};
 pub use contract::{ColumnKind, ColumnSpec, TableName, TimeRole};

@@ -6,7 +6,7 @@
 //! The data are synthetic and deterministic: every random number is SplitMix64 of a counter
 //! (Steele, Lea & Flood, OOPSLA 2014), so `tests/reference/survival/bench_lifelines.py` builds the
 //! same Cox data set in NumPy and times lifelines' CoxPHFitter on it. Both print the same summary
-//! line (rows, events, sum of exit times) to show that they agree.
+//! line (rows, events, sum of exit times, sum of covariates) and the fitted coefficients.
 
 use divan::Bencher;
 use kcohort_stats::follow_up::FollowUp;
@@ -20,6 +20,21 @@ fn main() {
     println!(
         "cox data: rows {COX_ROWS}, events {events}, sum of exit times {total_time:.0}, sum of covariates {x_sum:.3}"
     );
+    let names = ["x1", "x2", "x3", "x4", "x5"];
+    let data = cox::CoxData {
+        follow_up: &follow_up,
+        covariates: &x,
+        names: &names,
+        strata: None,
+        cluster: None,
+    };
+    let fit = cox::fit(&data, &cox::CoxOptions::default()).expect("the benchmark data fit");
+    let coefficients: Vec<String> = fit
+        .coefficients
+        .iter()
+        .map(|c| format!("{} {:.6}", c.name, c.coefficient))
+        .collect();
+    println!("coefficients: {}", coefficients.join(" "));
     divan::main();
 }
 

@@ -6,8 +6,8 @@
 //!
 //! - Ŝ(t_j) = Ŝ(t_{j−1}) (1 − d_j/n_j), the all-cause Kaplan–Meier curve;
 //! - F̂_k(t) = Σ_{t_j <= t} Ŝ(t_{j−1}) d_kj/n_j, so Σ_k F̂_k(t) + Ŝ(t) = 1 exactly;
-//! - Var F̂_k(t) = Σ_{t_j <= t} { [F̂_k(t) − F̂_k(t_j)]² d_j/(n_j(n_j − d_j))
-//!   + Ŝ(t_{j−1})² d_kj (n_j − d_kj)/n_j³ − 2 [F̂_k(t) − F̂_k(t_j)] Ŝ(t_{j−1}) d_kj/n_j² },
+//! - Var F̂_k(t) = Σ_{t_j <= t} { [F̂_k(t) − F̂_k(t_j)]² d_j/(n_j(n_j − d_j)) +
+//!   Ŝ(t_{j−1})² d_kj (n_j − d_kj)/n_j³ − 2 [F̂_k(t) − F̂_k(t_j)] Ŝ(t_{j−1}) d_kj/n_j² },
 //!   the delta-method ("Greenwood-type") estimator of Marubini & Valsecchi (Analysing Survival
 //!   Data from Clinical Trials and Observational Studies, Wiley 1995, §10.2). For right-censored
 //!   data it equals, term by term, the infinitesimal-jackknife variance that R survival 3.5
@@ -22,13 +22,15 @@
 //! Gray's test (Gray, Ann Stat 1988;16:1141–1154) compares the cumulative incidence of one event
 //! type across groups through the subdistribution hazards, with weight (1 − F̂(t−))^ρ and the
 //! variance estimator of that paper, optionally stratified (scores and variances summed over
-//! strata). Our implementation of the score and variance recursions follows the published
-//! estimator as computed by R package cmprsk 2.2-11 (`cuminc`, Fortran routine `crstm`, against
-//! which it is checked in `tests/reference/survival/aalen_johansen.R`). Gray's test is defined for
+//! strata). The score and variance are written from the estimator of that paper; results are
+//! checked against R package cmprsk 2.2-11 (`cuminc`) in
+//! `tests/reference/survival/aalen_johansen.R`. Gray's test is defined for
 //! right-censored data only: late entry is an input error there.
 
 use crate::cholesky::{Cholesky, to_rows};
-use crate::follow_up::{CompetingFollowUp, check_length, key_time, rows_by_stratum, time_key, validate_intervals};
+use crate::follow_up::{
+    CompetingFollowUp, check_length, key_time, rows_by_stratum, time_key, validate_intervals,
+};
 use crate::{ConfidenceLevel, Interval, StatsError};
 use rayon::prelude::*;
 use serde::Serialize;
@@ -65,7 +67,10 @@ pub struct AalenJohansenStep {
 }
 
 /// Estimates the cumulative incidence of every event type in `data`.
-pub fn estimate(data: &[CompetingFollowUp], level: ConfidenceLevel) -> Result<AalenJohansen, StatsError> {
+pub fn estimate(
+    data: &[CompetingFollowUp],
+    level: ConfidenceLevel,
+) -> Result<AalenJohansen, StatsError> {
     if data.is_empty() {
         return Err(StatsError::invalid("follow-up rows", "at least one row", 0));
     }
@@ -73,10 +78,16 @@ pub fn estimate(data: &[CompetingFollowUp], level: ConfidenceLevel) -> Result<Aa
     let k = data.iter().map(|r| r.cause).max().unwrap_or(0) as usize;
     let z = level.z();
 
-    let mut exits: Vec<(u64, u32)> = data.par_iter().map(|r| (time_key(r.exit), r.cause)).collect();
+    let mut exits: Vec<(u64, u32)> = data
+        .par_iter()
+        .map(|r| (time_key(r.exit), r.cause))
+        .collect();
     exits.par_sort_unstable();
-    let mut entries: Vec<u64> =
-        data.par_iter().filter(|r| r.entry > f64::NEG_INFINITY).map(|r| time_key(r.entry)).collect();
+    let mut entries: Vec<u64> = data
+        .par_iter()
+        .filter(|r| r.entry > f64::NEG_INFINITY)
+        .map(|r| time_key(r.entry))
+        .collect();
     entries.par_sort_unstable();
 
     let n = data.len();
@@ -87,7 +98,13 @@ pub fn estimate(data: &[CompetingFollowUp], level: ConfidenceLevel) -> Result<Aa
     // Running sums of the variance expansion, per cause (see the module formula):
     // q = Σ S² d_k (n − d_k)/n³, w = Σ d/(n(n − d)), wf = Σ w F_k, wf2 = Σ w F_k², u = Σ S d_k/n²,
     // uf = Σ u F_k, all at event times up to now.
-    let (mut q, mut wf, mut wf2, mut u, mut uf) = (vec![0.0; k], vec![0.0; k], vec![0.0; k], vec![0.0; k], vec![0.0; k]);
+    let (mut q, mut wf, mut wf2, mut u, mut uf) = (
+        vec![0.0; k],
+        vec![0.0; k],
+        vec![0.0; k],
+        vec![0.0; k],
+        vec![0.0; k],
+    );
     let mut w = 0.0;
     let (mut next, mut entered) = (0usize, 0usize);
     let mut counts = vec![0u64; k + 1];
@@ -132,11 +149,14 @@ pub fn estimate(data: &[CompetingFollowUp], level: ConfidenceLevel) -> Result<Aa
         let std_error: Vec<f64> = (0..k)
             .map(|c| {
                 let f = incidence[c];
-                let variance = q[c] + f * f * w - 2.0 * f * wf[c] + wf2[c] - 2.0 * f * u[c] + 2.0 * uf[c];
+                let variance =
+                    q[c] + f * f * w - 2.0 * f * wf[c] + wf2[c] - 2.0 * f * u[c] + 2.0 * uf[c];
                 variance.max(0.0).sqrt()
             })
             .collect();
-        let interval = (0..k).map(|c| log_log_incidence_interval(incidence[c], std_error[c], z, level)).collect();
+        let interval = (0..k)
+            .map(|c| log_log_incidence_interval(incidence[c], std_error[c], z, level))
+            .collect();
         steps.push(AalenJohansenStep {
             time: key_time(key),
             n_at_risk: n_at_risk as u64,
@@ -145,14 +165,23 @@ pub fn estimate(data: &[CompetingFollowUp], level: ConfidenceLevel) -> Result<Aa
             event_free: survival,
             // Once everyone at risk has had an event Ŝ = 0 is certain: the jackknife influence of
             // every subject on it is 0 (R reports 0 too), where Greenwood's Ŝ·σ would be 0·∞.
-            event_free_std_error: if survival > 0.0 { survival * greenwood.sqrt() } else { 0.0 },
+            event_free_std_error: if survival > 0.0 {
+                survival * greenwood.sqrt()
+            } else {
+                0.0
+            },
             cumulative_incidence: incidence.clone(),
             std_error,
             interval,
         });
         next = end;
     }
-    Ok(AalenJohansen { level: level.value(), n_rows: n as u64, causes: (1..=k as u32).collect(), steps })
+    Ok(AalenJohansen {
+        level: level.value(),
+        n_rows: n as u64,
+        causes: (1..=k as u32).collect(),
+        steps,
+    })
 }
 
 fn log_log_incidence_interval(f: f64, se: f64, z: f64, level: ConfidenceLevel) -> Option<Interval> {
@@ -160,7 +189,11 @@ fn log_log_incidence_interval(f: f64, se: f64, z: f64, level: ConfidenceLevel) -
         return None;
     }
     let half_width = z * se / (f * f.ln()).abs();
-    Some(Interval::new(f.powf(half_width.exp()), f.powf((-half_width).exp()), level))
+    Some(Interval::new(
+        f.powf(half_width.exp()),
+        f.powf((-half_width).exp()),
+        level,
+    ))
 }
 
 /// Gray's test of equal cumulative incidence of one event type across groups.
@@ -202,19 +235,34 @@ pub fn gray_test(
         ));
     }
     if cause == 0 {
-        return Err(StatsError::invalid("cause", "an event type 1..=k (0 means censored)", 0));
+        return Err(StatsError::invalid(
+            "cause",
+            "an event type 1..=k (0 means censored)",
+            0,
+        ));
     }
     if !rho.is_finite() {
-        return Err(StatsError::invalid("rho", "a finite weight exponent, usually 0", rho));
+        return Err(StatsError::invalid(
+            "rho",
+            "a finite weight exponent, usually 0",
+            rho,
+        ));
     }
     let mut codes: Vec<u32> = groups.to_vec();
     codes.sort_unstable();
     codes.dedup();
     if codes.len() < 2 {
-        return Err(StatsError::invalid("groups", "at least two distinct group codes", codes.len()));
+        return Err(StatsError::invalid(
+            "groups",
+            "at least two distinct group codes",
+            codes.len(),
+        ));
     }
     let k = codes.len();
-    let index: Vec<usize> = groups.iter().map(|g| codes.binary_search(g).expect("code listed")).collect();
+    let index: Vec<usize> = groups
+        .iter()
+        .map(|g| codes.binary_search(g).expect("code listed"))
+        .collect();
     let strata_rows = rows_by_stratum(strata, data.len());
     let n_strata = strata_rows.len();
     let (scores, variance) = strata_rows
@@ -295,7 +343,8 @@ impl GrayStratum {
         rho: f64,
     ) -> (Vec<f64>, Vec<f64>) {
         let k = self.k;
-        let mut order: Vec<(u64, usize)> = rows.iter().map(|&i| (time_key(data[i].exit), i)).collect();
+        let mut order: Vec<(u64, usize)> =
+            rows.iter().map(|&i| (time_key(data[i].exit), i)).collect();
         order.sort_unstable();
         for &i in rows {
             self.at_risk[group[i]] += 1.0;
@@ -322,9 +371,10 @@ impl GrayStratum {
             if of_interest.iter().chain(&other).any(|&d| d > 0.0) {
                 self.event_time(&of_interest, &other, rho);
             }
-            for g in 0..k {
-                self.at_risk[g] -= leaving[g];
-            }
+            self.at_risk
+                .iter_mut()
+                .zip(&leaving)
+                .for_each(|(r, l)| *r -= l);
             next = end;
         }
         // Close the variance: add the terms that need the final integrated weights.
@@ -334,7 +384,9 @@ impl GrayStratum {
                 let mut extra = 0.0;
                 for g in 0..k {
                     let (ci, cj) = (self.integrated[i * k + g], self.integrated[j * k + g]);
-                    extra += ci * cj * self.squared_terms[g] + ci * self.cross_terms[j * k + g] + cj * self.cross_terms[i * k + g];
+                    extra += ci * cj * self.squared_terms[g]
+                        + ci * self.cross_terms[j * k + g]
+                        + cj * self.cross_terms[i * k + g];
                 }
                 self.variance[i * m + j] += extra;
             }
@@ -376,7 +428,8 @@ impl GrayStratum {
             for j in (0..k).filter(|&j| present[j]) {
                 let delta = if i == j { 1.0 } else { 0.0 };
                 a[i * k + j] = weight * h[i] * (delta - h[j] / h_total);
-                self.integrated[i * k + j] += a[i * k + j] * d1 / (h_total * (1.0 - self.pooled_before));
+                self.integrated[i * k + j] +=
+                    a[i * k + j] * d1 / (h_total * (1.0 - self.pooled_before));
             }
         }
         for i in (0..m).filter(|&i| present[i]) {
@@ -384,8 +437,16 @@ impl GrayStratum {
         }
         if d1 > 0.0 {
             for g in (0..k).filter(|&g| present[g]) {
-                let t4 = if survival[g] > 0.0 { 1.0 - (1.0 - pooled) / survival[g] } else { 1.0 };
-                let ties = if d1 > 1.0 { 1.0 - (d1 - 1.0) / (h_total * self.survival_before[g] - 1.0) } else { 1.0 };
+                let t4 = if survival[g] > 0.0 {
+                    1.0 - (1.0 - pooled) / survival[g]
+                } else {
+                    1.0
+                };
+                let ties = if d1 > 1.0 {
+                    1.0 - (d1 - 1.0) / (h_total * self.survival_before[g] - 1.0)
+                } else {
+                    1.0
+                };
                 let t3 = ties * self.survival_before[g] * d1 / (h_total * self.at_risk[g]);
                 self.add_variance_terms(g, t4, t3, Some(&a));
             }
@@ -394,7 +455,11 @@ impl GrayStratum {
             for g in (0..k).filter(|&g| survival[g] > 0.0 && other[g] > 0.0) {
                 let t4 = (1.0 - pooled) / survival[g];
                 let r = self.at_risk[g];
-                let ties = if other[g] > 1.0 { 1.0 - (other[g] - 1.0) / (r - 1.0) } else { 1.0 };
+                let ties = if other[g] > 1.0 {
+                    1.0 - (other[g] - 1.0) / (r - 1.0)
+                } else {
+                    1.0
+                };
                 let t3 = ties * self.survival_before[g].powi(2) * other[g] / (r * r);
                 self.add_variance_terms(g, t4, t3, None);
             }
@@ -434,7 +499,8 @@ mod tests {
         // Six subjects: cause 1 at 1, censored at 2, cause 2 at 3, cause 1 at 3, cause 2 at 5, censored at 6.
         // By hand: t=1: n=6, S=5/6, F1=1/6; t=3: n=4, S=5/6·2/4=5/12, F1=1/6+5/6·1/4=3/8, F2=5/24;
         // t=5: n=2, S=5/24, F2=5/24+5/12·1/2=5/12.
-        let data = [(1.0, 1), (2.0, 0), (3.0, 2), (3.0, 1), (5.0, 2), (6.0, 0)].map(|(t, c)| CompetingFollowUp::new(t, c));
+        let data = [(1.0, 1), (2.0, 0), (3.0, 2), (3.0, 1), (5.0, 2), (6.0, 0)]
+            .map(|(t, c)| CompetingFollowUp::new(t, c));
         let fit = estimate(&data, ConfidenceLevel::NINETY_FIVE).unwrap();
         let last = fit.steps.last().unwrap();
         assert!((last.event_free - 5.0 / 24.0).abs() < 1e-15);
@@ -478,9 +544,15 @@ mod tests {
 
     #[test]
     fn gray_test_rejects_late_entry_and_single_groups() {
-        let data = [CompetingFollowUp::with_entry(0.0, 1.0, 1), CompetingFollowUp::new(2.0, 2)];
+        let data = [
+            CompetingFollowUp::with_entry(0.0, 1.0, 1),
+            CompetingFollowUp::new(2.0, 2),
+        ];
         assert!(gray_test(&data, &[0, 1], None, 1, 0.0).is_err());
-        let data = [CompetingFollowUp::new(1.0, 1), CompetingFollowUp::new(2.0, 2)];
+        let data = [
+            CompetingFollowUp::new(1.0, 1),
+            CompetingFollowUp::new(2.0, 2),
+        ];
         assert!(gray_test(&data, &[0, 0], None, 1, 0.0).is_err());
     }
 }

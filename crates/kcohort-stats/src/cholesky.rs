@@ -29,7 +29,8 @@ impl Cholesky {
             for k in 0..j {
                 pivot -= lower[j * size + k] * lower[j * size + k];
             }
-            if !(diagonal > 0.0 && pivot > RELATIVE_PIVOT_TOLERANCE * diagonal && pivot.is_finite()) {
+            if !(diagonal > 0.0 && pivot > RELATIVE_PIVOT_TOLERANCE * diagonal && pivot.is_finite())
+            {
                 return Err(j);
             }
             let root = pivot.sqrt();
@@ -118,11 +119,21 @@ mod tests {
             }
         }
         let x = c.solve(&[1.0, 2.0, 3.0]);
-        let back: Vec<f64> = (0..3).map(|i| (0..3).map(|k| a[i * 3 + k] * x[k]).sum()).collect();
+        let back: Vec<f64> = (0..3)
+            .map(|i| (0..3).map(|k| a[i * 3 + k] * x[k]).sum())
+            .collect();
         for (b, e) in back.iter().zip([1.0, 2.0, 3.0]) {
             assert!((b - e).abs() < 1e-14);
         }
-        assert!((c.quadratic_form(&[1.0, 2.0, 3.0]) - x.iter().zip([1.0, 2.0, 3.0]).map(|(a, b)| a * b).sum::<f64>()).abs() < 1e-15);
+        assert!(
+            (c.quadratic_form(&[1.0, 2.0, 3.0])
+                - x.iter()
+                    .zip([1.0, 2.0, 3.0])
+                    .map(|(a, b)| a * b)
+                    .sum::<f64>())
+            .abs()
+                < 1e-15
+        );
     }
 
     #[test]

@@ -73,7 +73,12 @@ pub struct CoxOptions {
 
 impl Default for CoxOptions {
     fn default() -> Self {
-        CoxOptions { ties: Ties::Efron, level: ConfidenceLevel::NINETY_FIVE, max_iterations: 20, tolerance: 1e-9 }
+        CoxOptions {
+            ties: Ties::Efron,
+            level: ConfidenceLevel::NINETY_FIVE,
+            max_iterations: 20,
+            tolerance: 1e-9,
+        }
     }
 }
 
@@ -125,8 +130,14 @@ pub struct ChiSquareTest {
 
 impl ChiSquareTest {
     fn new(statistic: f64, degrees_of_freedom: usize) -> Self {
-        let p_value = ChiSquared::new(degrees_of_freedom as f64).expect("df >= 1").sf(statistic.max(0.0));
-        ChiSquareTest { statistic, degrees_of_freedom, p_value }
+        let p_value = ChiSquared::new(degrees_of_freedom as f64)
+            .expect("df >= 1")
+            .sf(statistic.max(0.0));
+        ChiSquareTest {
+            statistic,
+            degrees_of_freedom,
+            p_value,
+        }
     }
 }
 
@@ -137,13 +148,18 @@ pub fn fit(data: &CoxData<'_>, options: &CoxOptions) -> Result<CoxFit, StatsErro
     let names = data.names;
     let tolerance = options.tolerance;
     if !(tolerance > 0.0 && tolerance < 1.0) {
-        return Err(StatsError::invalid("tolerance", "a number between 0 and 1, e.g. 1e-9", tolerance));
+        return Err(StatsError::invalid(
+            "tolerance",
+            "a number between 0 and 1, e.g. 1e-9",
+            tolerance,
+        ));
     }
 
     let mut beta = vec![0.0; p];
     let null = model.evaluate(&beta);
     let null_chol = Cholesky::new(&null.information, p).map_err(|j| singular(names, j))?;
     let score_statistic = null_chol.quadratic_form(&null.score);
+    let (log_likelihood_null, null_score) = (null.log_likelihood, null.score.clone());
 
     let mut current = null;
     let mut chol = null_chol;
@@ -193,11 +209,19 @@ pub fn fit(data: &CoxData<'_>, options: &CoxOptions) -> Result<CoxFit, StatsErro
             names[j],
             beta[j],
             next_step[j],
-            if converged { " while the log partial likelihood no longer changes" } else { "" },
+            if converged {
+                " while the log partial likelihood no longer changes"
+            } else {
+                ""
+            },
             names[j],
             names[j]
         );
-        return Err(if converged { StatsError::NotEstimable(detail) } else { StatsError::NoConvergence { iterations, detail } });
+        return Err(if converged {
+            StatsError::NotEstimable(detail)
+        } else {
+            StatsError::NoConvergence { iterations, detail }
+        });
     }
     if !converged {
         return Err(StatsError::NoConvergence {
@@ -211,7 +235,13 @@ pub fn fit(data: &CoxData<'_>, options: &CoxOptions) -> Result<CoxFit, StatsErro
 
     let variance = chol.inverse();
     let wald_statistic = {
-        let ib: Vec<f64> = (0..p).map(|a| (0..p).map(|b| current.information[a * p + b] * beta[b]).sum()).collect();
+        let ib: Vec<f64> = (0..p)
+            .map(|a| {
+                (0..p)
+                    .map(|b| current.information[a * p + b] * beta[b])
+                    .sum()
+            })
+            .collect();
         ib.iter().zip(&beta).map(|(x, b)| x * b).sum::<f64>()
     };
 
@@ -228,7 +258,10 @@ pub fn fit(data: &CoxData<'_>, options: &CoxOptions) -> Result<CoxFit, StatsErro
         robust_wald = Some(ChiSquareTest::new(robust_chol.quadratic_form(&beta), p));
         let null_meat = model.clustered_residual_products(&vec![0.0; p], &index, clusters);
         let null_meat_chol = Cholesky::new(&null_meat, p).map_err(|j| singular(names, j))?;
-        robust_score = Some(ChiSquareTest::new(null_meat_chol.quadratic_form(&model.evaluate(&vec![0.0; p]).score), p));
+        robust_score = Some(ChiSquareTest::new(
+            null_meat_chol.quadratic_form(&null_score),
+            p,
+        ));
         robust_variance = Some(robust);
     }
 
@@ -257,7 +290,6 @@ pub fn fit(data: &CoxData<'_>, options: &CoxOptions) -> Result<CoxFit, StatsErro
         })
         .collect();
 
-    let log_likelihood_null = model.evaluate(&vec![0.0; p]).log_likelihood;
     Ok(CoxFit {
         ties: options.ties,
         level: options.level.value(),
@@ -271,7 +303,10 @@ pub fn fit(data: &CoxData<'_>, options: &CoxOptions) -> Result<CoxFit, StatsErro
         robust_variance: robust_variance.map(|v| to_rows(&v, p)),
         log_likelihood_null,
         log_likelihood: current.log_likelihood,
-        likelihood_ratio: ChiSquareTest::new(2.0 * (current.log_likelihood - log_likelihood_null), p),
+        likelihood_ratio: ChiSquareTest::new(
+            2.0 * (current.log_likelihood - log_likelihood_null),
+            p,
+        ),
         score: ChiSquareTest::new(score_statistic, p),
         wald: ChiSquareTest::new(wald_statistic, p),
         robust_wald,
@@ -309,7 +344,10 @@ fn cluster_index(cluster: &[u64]) -> (usize, Vec<usize>) {
     let mut ids: Vec<u64> = cluster.to_vec();
     ids.par_sort_unstable();
     ids.dedup();
-    let index = cluster.par_iter().map(|c| ids.binary_search(c).expect("id listed")).collect();
+    let index = cluster
+        .par_iter()
+        .map(|c| ids.binary_search(c).expect("id listed"))
+        .collect();
     (ids.len(), index)
 }
 
@@ -324,13 +362,23 @@ struct Evaluation {
 
 impl Evaluation {
     fn zero(p: usize) -> Self {
-        Evaluation { log_likelihood: 0.0, score: vec![0.0; p], information: vec![0.0; p * p] }
+        Evaluation {
+            log_likelihood: 0.0,
+            score: vec![0.0; p],
+            information: vec![0.0; p * p],
+        }
     }
 
     fn add(mut self, other: Evaluation) -> Self {
         self.log_likelihood += other.log_likelihood;
-        self.score.iter_mut().zip(&other.score).for_each(|(a, b)| *a += b);
-        self.information.iter_mut().zip(&other.information).for_each(|(a, b)| *a += b);
+        self.score
+            .iter_mut()
+            .zip(&other.score)
+            .for_each(|(a, b)| *a += b);
+        self.information
+            .iter_mut()
+            .zip(&other.information)
+            .for_each(|(a, b)| *a += b);
         self
     }
 }
@@ -366,13 +414,22 @@ impl Model {
         let n = data.follow_up.len();
         let p = data.names.len();
         if p == 0 {
-            return Err(StatsError::invalid("covariates", "at least one covariate", 0));
+            return Err(StatsError::invalid(
+                "covariates",
+                "at least one covariate",
+                0,
+            ));
         }
         if n == 0 {
             return Err(StatsError::invalid("follow-up rows", "at least one row", 0));
         }
-        check_length("covariates (rows × names)", data.covariates.len(), n * p)
-            .map_err(|_| StatsError::invalid("covariates", format!("{n} rows × {p} covariates = {} values", n * p), data.covariates.len()))?;
+        check_length("covariates (rows × names)", data.covariates.len(), n * p).map_err(|_| {
+            StatsError::invalid(
+                "covariates",
+                format!("{n} rows × {p} covariates = {} values", n * p),
+                data.covariates.len(),
+            )
+        })?;
         if let Some(s) = data.strata {
             check_length("strata", s.len(), n)?;
         }
@@ -380,7 +437,11 @@ impl Model {
             check_length("cluster", c.len(), n)?;
         }
         validate_intervals(n, |i| (data.follow_up[i].entry, data.follow_up[i].exit))?;
-        if let Some(k) = data.covariates.par_iter().position_first(|v| !v.is_finite()) {
+        if let Some(k) = data
+            .covariates
+            .par_iter()
+            .position_first(|v| !v.is_finite())
+        {
             return Err(StatsError::invalid(
                 format!("covariate `{}` in row {}", data.names[k % p], k / p),
                 "a finite number (drop or impute missing values first)",
@@ -389,7 +450,9 @@ impl Model {
         }
         let n_events = data.follow_up.par_iter().filter(|r| r.event).count() as u64;
         if n_events == 0 {
-            return Err(StatsError::NotEstimable("the Cox model needs at least one event; there are none".into()));
+            return Err(StatsError::NotEstimable(
+                "the Cox model needs at least one event; there are none".into(),
+            ));
         }
         // Centre the covariates (R does too): the fit is unchanged, the sums are better conditioned.
         let means: Vec<f64> = (0..p)
@@ -399,7 +462,12 @@ impl Model {
             .into_par_iter()
             .map(|(_, rows)| Stratum::new(data, &rows, &means))
             .collect();
-        Ok(Model { p, ties, n_events, strata })
+        Ok(Model {
+            p,
+            ties,
+            n_events,
+            strata,
+        })
     }
 
     fn evaluate(&self, beta: &[f64]) -> Evaluation {
@@ -410,7 +478,12 @@ impl Model {
     }
 
     /// Σ_c L_c L_cᵀ with L_c the score residuals summed within cluster c.
-    fn clustered_residual_products(&self, beta: &[f64], cluster: &[usize], n_clusters: usize) -> Vec<f64> {
+    fn clustered_residual_products(
+        &self,
+        beta: &[f64],
+        cluster: &[usize],
+        n_clusters: usize,
+    ) -> Vec<f64> {
         let p = self.p;
         let mut sums = vec![0.0; n_clusters * p];
         for stratum in &self.strata {
@@ -460,7 +533,11 @@ struct RiskSums {
 
 impl RiskSums {
     fn new(p: usize) -> Self {
-        RiskSums { s0: 0.0, s1: vec![0.0; p], s2: vec![0.0; p * p] }
+        RiskSums {
+            s0: 0.0,
+            s1: vec![0.0; p],
+            s2: vec![0.0; p * p],
+        }
     }
 
     fn clear(&mut self) {
@@ -488,15 +565,20 @@ impl Stratum {
     fn new(data: &CoxData<'_>, rows: &[usize], means: &[f64]) -> Self {
         let p = means.len();
         let follow_up = data.follow_up;
-        let mut order: Vec<(u64, usize)> = rows.iter().map(|&i| (time_key(follow_up[i].exit), i)).collect();
+        let mut order: Vec<(u64, usize)> = rows
+            .iter()
+            .map(|&i| (time_key(follow_up[i].exit), i))
+            .collect();
         order.par_sort_unstable_by(|a, b| b.cmp(a));
         let rows: Vec<usize> = order.iter().map(|&(_, i)| i).collect();
         let mut x = vec![0.0; rows.len() * p];
-        x.par_chunks_mut(p).zip(rows.par_iter()).for_each(|(out, &i)| {
-            for j in 0..p {
-                out[j] = data.covariates[i * p + j] - means[j];
-            }
-        });
+        x.par_chunks_mut(p)
+            .zip(rows.par_iter())
+            .for_each(|(out, &i)| {
+                for j in 0..p {
+                    out[j] = data.covariates[i * p + j] - means[j];
+                }
+            });
         let event = rows.iter().map(|&i| follow_up[i].event).collect();
         let mut groups = Vec::new();
         let mut group_time = Vec::new();
@@ -544,11 +626,21 @@ impl Stratum {
         if m > 50_000 {
             eta.par_chunks_mut(4096)
                 .zip(self.x.par_chunks(4096 * p))
-                .for_each(|(e, x)| e.iter_mut().zip(x.chunks(p)).for_each(|(o, xi)| linear(o, xi)));
+                .for_each(|(e, x)| {
+                    e.iter_mut()
+                        .zip(x.chunks(p))
+                        .for_each(|(o, xi)| linear(o, xi))
+                });
         } else {
-            eta.iter_mut().zip(self.x.chunks(p)).for_each(|(o, xi)| linear(o, xi));
+            eta.iter_mut()
+                .zip(self.x.chunks(p))
+                .for_each(|(o, xi)| linear(o, xi));
         }
-        let weight = if m > 50_000 { eta.par_iter().map(|e| e.exp()).collect() } else { eta.iter().map(|e| e.exp()).collect() };
+        let weight = if m > 50_000 {
+            eta.par_iter().map(|e| e.exp()).collect()
+        } else {
+            eta.iter().map(|e| e.exp()).collect()
+        };
         (eta, weight)
     }
 
@@ -587,15 +679,16 @@ impl Stratum {
             for l in 0..substeps {
                 let fraction = l as f64 / n_deaths as f64;
                 let s0 = risk.s0 - fraction * deaths.s0;
-                for a in 0..p {
-                    s1[a] = risk.s1[a] - fraction * deaths.s1[a];
+                for ((s, r), d) in s1.iter_mut().zip(&risk.s1).zip(&deaths.s1) {
+                    *s = r - fraction * d;
                 }
                 out.log_likelihood -= multiplicity * s0.ln();
                 for a in 0..p {
                     out.score[a] -= multiplicity * s1[a] / s0;
                     for b in a..p {
                         let s2 = risk.s2[a * p + b] - fraction * deaths.s2[a * p + b];
-                        out.information[a * p + b] += multiplicity * (s2 / s0 - s1[a] * s1[b] / (s0 * s0));
+                        out.information[a * p + b] +=
+                            multiplicity * (s2 / s0 - s1[a] * s1[b] / (s0 * s0));
                     }
                 }
             }
@@ -626,11 +719,14 @@ impl Stratum {
         for (g, &(start, end)) in self.groups.iter().enumerate() {
             deaths.clear();
             let mut n_deaths = 0usize;
-            for pos in start..end {
-                let x = &self.x[pos * p..(pos + 1) * p];
-                risk.add(x, weight[pos]);
-                if self.event[pos] {
-                    deaths.add(x, weight[pos]);
+            for ((x, &w), &event) in self.x[start * p..end * p]
+                .chunks(p)
+                .zip(&weight[start..end])
+                .zip(&self.event[start..end])
+            {
+                risk.add(x, w);
+                if event {
+                    deaths.add(x, w);
                     n_deaths += 1;
                 }
             }
@@ -674,29 +770,38 @@ impl Stratum {
         let mut entry_group = vec![n_groups; self.rows.len()];
         // Rows with a finite entry: the first group (in sweep order) whose time is <= entry.
         for (&pos, &entry_key) in self.removals.iter().zip(&self.removal_keys) {
-            entry_group[pos] = self.group_time.partition_point(|&t| time_key(t) > entry_key);
+            entry_group[pos] = self
+                .group_time
+                .partition_point(|&t| time_key(t) > entry_key);
         }
         let mut residuals = vec![0.0; self.rows.len() * p];
-        residuals.par_chunks_mut(p).enumerate().for_each(|(pos, out)| {
-            let g = group_of[pos];
-            let h = entry_group[pos];
-            let x = &self.x[pos * p..(pos + 1) * p];
-            let w = weight[pos];
-            // Event times strictly inside (entry, exit): groups g+1 .. h-1.
-            let window_a = cum_a[g + 1] - cum_a[h.max(g + 1)];
-            let (own_a, own_b) = if self.event[pos] { (a_death[g], &b_death) } else { (a[g], &b) };
-            for k in 0..p {
-                let window_b = cum_b[(g + 1) * p + k] - cum_b[h.max(g + 1) * p + k];
-                let mut value = -w * (x[k] * window_a - window_b) - w * (x[k] * own_a - own_b[g * p + k]);
-                if self.event[pos] {
-                    value += x[k] - x_bar[g * p + k];
+        residuals
+            .par_chunks_mut(p)
+            .enumerate()
+            .for_each(|(pos, out)| {
+                let g = group_of[pos];
+                let h = entry_group[pos];
+                let x = &self.x[pos * p..(pos + 1) * p];
+                let w = weight[pos];
+                // Event times strictly inside (entry, exit): groups g+1 .. h-1.
+                let window_a = cum_a[g + 1] - cum_a[h.max(g + 1)];
+                let (own_a, own_b) = if self.event[pos] {
+                    (a_death[g], &b_death)
+                } else {
+                    (a[g], &b)
+                };
+                for k in 0..p {
+                    let window_b = cum_b[(g + 1) * p + k] - cum_b[h.max(g + 1) * p + k];
+                    let mut value =
+                        -w * (x[k] * window_a - window_b) - w * (x[k] * own_a - own_b[g * p + k]);
+                    if self.event[pos] {
+                        value += x[k] - x_bar[g * p + k];
+                    }
+                    out[k] = value;
                 }
-                out[k] = value;
-            }
-        });
+            });
         residuals
     }
-
 }
 
 #[cfg(test)]
@@ -705,26 +810,61 @@ mod tests {
     use crate::log_rank;
     use proptest::prelude::*;
 
-    fn fit_one(follow_up: &[FollowUp], x: &[f64], names: &[&str], ties: Ties) -> Result<CoxFit, StatsError> {
-        let data = CoxData { follow_up, covariates: x, names, strata: None, cluster: None };
-        fit(&data, &CoxOptions { ties, ..Default::default() })
+    fn fit_one(
+        follow_up: &[FollowUp],
+        x: &[f64],
+        names: &[&str],
+        ties: Ties,
+    ) -> Result<CoxFit, StatsError> {
+        let data = CoxData {
+            follow_up,
+            covariates: x,
+            names,
+            strata: None,
+            cluster: None,
+        };
+        fit(
+            &data,
+            &CoxOptions {
+                ties,
+                ..Default::default()
+            },
+        )
     }
 
     #[test]
     fn a_separating_covariate_is_an_error_that_names_it() {
         // Everyone with x = 1 dies before anyone with x = 0: the likelihood increases forever in β.
         let follow_up: Vec<FollowUp> = (1..=10).map(|t| FollowUp::new(t as f64, true)).collect();
-        let x: Vec<f64> = (0..10).flat_map(|i| [if i < 5 { 1.0 } else { 0.0 }, ((i * 7) % 5) as f64]).collect();
+        let x: Vec<f64> = (0..10)
+            .flat_map(|i| [if i < 5 { 1.0 } else { 0.0 }, ((i * 7) % 5) as f64])
+            .collect();
         let err = fit_one(&follow_up, &x, &["early", "noise"], Ties::Efron).unwrap_err();
         let message = err.to_string();
-        assert!(message.contains("`early`") && message.contains("diverging"), "{message}");
+        assert!(
+            message.contains("`early`") && message.contains("diverging"),
+            "{message}"
+        );
     }
 
     #[test]
     fn a_collinear_covariate_is_an_error_that_names_it() {
-        let follow_up: Vec<FollowUp> = (1..=12).map(|t| FollowUp::new(t as f64, t % 3 != 0)).collect();
-        let x: Vec<f64> = (0..12).flat_map(|i| { let a = ((i * 5) % 7) as f64; [a, 1.0 - (i % 2) as f64, 2.0 * a + 1.0] }).collect();
-        let err = fit_one(&follow_up, &x, &["dose", "sex", "dose_doubled"], Ties::Breslow).unwrap_err();
+        let follow_up: Vec<FollowUp> = (1..=12)
+            .map(|t| FollowUp::new(t as f64, t % 3 != 0))
+            .collect();
+        let x: Vec<f64> = (0..12)
+            .flat_map(|i| {
+                let a = ((i * 5) % 7) as f64;
+                [a, 1.0 - (i % 2) as f64, 2.0 * a + 1.0]
+            })
+            .collect();
+        let err = fit_one(
+            &follow_up,
+            &x,
+            &["dose", "sex", "dose_doubled"],
+            Ties::Breslow,
+        )
+        .unwrap_err();
         assert!(err.to_string().contains("`dose_doubled`"), "{err}");
         let constant: Vec<f64> = (0..12).flat_map(|i| [((i * 5) % 7) as f64, 3.0]).collect();
         let err = fit_one(&follow_up, &constant, &["dose", "site"], Ties::Breslow).unwrap_err();
@@ -733,19 +873,43 @@ mod tests {
 
     #[test]
     fn too_few_iterations_and_no_events_are_errors() {
-        let follow_up: Vec<FollowUp> = (1..=12).map(|t| FollowUp::new(t as f64, t % 3 != 0)).collect();
+        let follow_up: Vec<FollowUp> = (1..=12)
+            .map(|t| FollowUp::new(t as f64, t % 3 != 0))
+            .collect();
         let x: Vec<f64> = (0..12).map(|i| ((i * 5) % 7) as f64).collect();
-        let data = CoxData { follow_up: &follow_up, covariates: &x, names: &["dose"], strata: None, cluster: None };
-        let err = fit(&data, &CoxOptions { max_iterations: 1, ..Default::default() }).unwrap_err();
-        assert!(matches!(err, StatsError::NoConvergence { iterations: 1, .. }), "{err}");
-        let censored: Vec<FollowUp> = follow_up.iter().map(|r| FollowUp::new(r.exit, false)).collect();
+        let data = CoxData {
+            follow_up: &follow_up,
+            covariates: &x,
+            names: &["dose"],
+            strata: None,
+            cluster: None,
+        };
+        let err = fit(
+            &data,
+            &CoxOptions {
+                max_iterations: 1,
+                ..Default::default()
+            },
+        )
+        .unwrap_err();
+        assert!(
+            matches!(err, StatsError::NoConvergence { iterations: 1, .. }),
+            "{err}"
+        );
+        let censored: Vec<FollowUp> = follow_up
+            .iter()
+            .map(|r| FollowUp::new(r.exit, false))
+            .collect();
         assert!(fit_one(&censored, &x, &["dose"], Ties::Efron).is_err());
         assert!(fit_one(&follow_up, &x[..11], &["dose"], Ties::Efron).is_err());
     }
 
     /// Random small data sets: (time order, event, group, second covariate).
     fn small_data() -> impl Strategy<Value = Vec<(bool, bool, u8)>> {
-        proptest::collection::vec((proptest::bool::weighted(0.7), proptest::bool::ANY, 0u8..5), 20..60)
+        proptest::collection::vec(
+            (proptest::bool::weighted(0.7), proptest::bool::ANY, 0u8..5),
+            20..60,
+        )
     }
 
     proptest! {

@@ -27,7 +27,11 @@ pub struct FollowUp {
 impl FollowUp {
     /// Right-censored follow-up: at risk from the start until `exit`.
     pub fn new(exit: f64, event: bool) -> Self {
-        FollowUp { entry: f64::NEG_INFINITY, exit, event }
+        FollowUp {
+            entry: f64::NEG_INFINITY,
+            exit,
+            event,
+        }
     }
 
     /// Follow-up with late entry: at risk on (entry, exit].
@@ -50,7 +54,11 @@ pub struct CompetingFollowUp {
 impl CompetingFollowUp {
     /// Right-censored competing-risks follow-up, at risk from the start.
     pub fn new(exit: f64, cause: u32) -> Self {
-        CompetingFollowUp { entry: f64::NEG_INFINITY, exit, cause }
+        CompetingFollowUp {
+            entry: f64::NEG_INFINITY,
+            exit,
+            cause,
+        }
     }
 
     /// Competing-risks follow-up with late entry: at risk on (entry, exit].
@@ -86,19 +94,31 @@ pub(crate) fn check_length(what: &str, found: usize, rows: usize) -> Result<(), 
     if found == rows {
         Ok(())
     } else {
-        Err(StatsError::invalid(what, format!("one value per follow-up row ({rows})"), found))
+        Err(StatsError::invalid(
+            what,
+            format!("one value per follow-up row ({rows})"),
+            found,
+        ))
     }
 }
 
 /// Maps a time to a u64 whose unsigned order is the numeric order of the time (-0 and +0 equal).
 pub(crate) fn time_key(time: f64) -> u64 {
     let bits = (time + 0.0).to_bits();
-    if bits >> 63 == 1 { !bits } else { bits | (1 << 63) }
+    if bits >> 63 == 1 {
+        !bits
+    } else {
+        bits | (1 << 63)
+    }
 }
 
 /// Inverse of [`time_key`].
 pub(crate) fn key_time(key: u64) -> f64 {
-    if key >> 63 == 1 { f64::from_bits(key & !(1 << 63)) } else { f64::from_bits(!key) }
+    if key >> 63 == 1 {
+        f64::from_bits(key & !(1 << 63))
+    } else {
+        f64::from_bits(!key)
+    }
 }
 
 /// Sorts keys ascending: least-significant-digit radix sort with 8-bit digits, skipping digits that
@@ -143,8 +163,11 @@ pub(crate) fn sort_keys(keys: &mut Vec<u64>) {
             *o = running;
             running += c;
         }
-        let (source, target) =
-            if sorted_in_buffer { (&buffer[..], &mut keys[..]) } else { (&keys[..], &mut buffer[..]) };
+        let (source, target) = if sorted_in_buffer {
+            (&buffer[..], &mut keys[..])
+        } else {
+            (&keys[..], &mut buffer[..])
+        };
         for &key in source {
             let bucket = ((key >> (8 * digit)) & 0xFF) as usize;
             target[offset[bucket]] = key;
@@ -182,7 +205,19 @@ mod tests {
 
     #[test]
     fn time_keys_sort_like_numbers_and_round_trip() {
-        let times = [-1e300, -2.5, -0.0, 0.0, 1e-300, 0.5, 1.0, 2.0, 3650.0, 1e300, f64::NEG_INFINITY];
+        let times = [
+            -1e300,
+            -2.5,
+            -0.0,
+            0.0,
+            1e-300,
+            0.5,
+            1.0,
+            2.0,
+            3650.0,
+            1e300,
+            f64::NEG_INFINITY,
+        ];
         for pair in times.windows(2).take(times.len() - 2) {
             assert!(time_key(pair[0]) <= time_key(pair[1]), "{pair:?}");
         }
@@ -199,8 +234,14 @@ mod tests {
         let mut state = 12345u64;
         let mut keys: Vec<u64> = (0..50_000)
             .map(|i| {
-                state = state.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
-                let time = if i % 3 == 0 { (state >> 40) as f64 } else { ((state >> 52) as f64) * 0.25 - 7.0 };
+                state = state
+                    .wrapping_mul(6364136223846793005)
+                    .wrapping_add(1442695040888963407);
+                let time = if i % 3 == 0 {
+                    (state >> 40) as f64
+                } else {
+                    ((state >> 52) as f64) * 0.25 - 7.0
+                };
                 time_key(time)
             })
             .collect();

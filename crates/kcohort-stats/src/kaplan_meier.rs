@@ -37,7 +37,10 @@ pub struct KaplanMeierOptions {
 
 impl Default for KaplanMeierOptions {
     fn default() -> Self {
-        KaplanMeierOptions { level: ConfidenceLevel::NINETY_FIVE, at_times: Vec::new() }
+        KaplanMeierOptions {
+            level: ConfidenceLevel::NINETY_FIVE,
+            at_times: Vec::new(),
+        }
     }
 }
 
@@ -95,7 +98,10 @@ pub struct MedianSurvival {
 }
 
 /// Estimates the Kaplan–Meier curve of `data`.
-pub fn estimate(data: &[FollowUp], options: &KaplanMeierOptions) -> Result<KaplanMeier, StatsError> {
+pub fn estimate(
+    data: &[FollowUp],
+    options: &KaplanMeierOptions,
+) -> Result<KaplanMeier, StatsError> {
     if data.is_empty() {
         return Err(StatsError::invalid("follow-up rows", "at least one row", 0));
     }
@@ -139,7 +145,14 @@ pub fn estimate(data: &[FollowUp], options: &KaplanMeierOptions) -> Result<Kapla
                 // Before the first exit nothing is uncertain yet: S = 1 with a degenerate interval
                 // (R `summary(fit, times)` reports 1 for both limits and both transforms).
                 let certain = Some(Interval::new(1.0, 1.0, level));
-                return SurvivalAt { time: t, n_at_risk, survival: 1.0, std_error: 0.0, log_interval: certain, log_log_interval: certain };
+                return SurvivalAt {
+                    time: t,
+                    n_at_risk,
+                    survival: 1.0,
+                    std_error: 0.0,
+                    log_interval: certain,
+                    log_log_interval: certain,
+                };
             }
             let step = &steps[last - 1];
             SurvivalAt {
@@ -177,29 +190,39 @@ pub(crate) fn intervals(
         return (None, None);
     }
     let spread = (z * sigma).exp();
-    let log = Some(Interval::new(survival / spread, (survival * spread).min(1.0), level));
+    let log = Some(Interval::new(
+        survival / spread,
+        (survival * spread).min(1.0),
+        level,
+    ));
     if survival >= 1.0 {
         return (log, None);
     }
     let log_survival = survival.ln();
     let factor = (z * sigma / log_survival).exp();
-    let log_log = Some(Interval::new((log_survival / factor).exp(), (log_survival * factor).exp(), level));
+    let log_log = Some(Interval::new(
+        (log_survival / factor).exp(),
+        (log_survival * factor).exp(),
+        level,
+    ));
     (log, log_log)
 }
 
+/// One of the five curves whose crossing of 1/2 the median needs.
+type StepValue = dyn Fn(&KaplanMeierStep) -> Option<f64> + Sync;
+
 fn median_of(steps: &[KaplanMeierStep], level: ConfidenceLevel) -> MedianSurvival {
     let times: Vec<f64> = steps.iter().map(|s| s.time).collect();
-    let q = |value: &(dyn Fn(&KaplanMeierStep) -> Option<f64> + Sync)| {
-        first_time_reaching(&times, |i| value(&steps[i]).map(|v| 1.0 - v), 0.5)
-    };
-    let curves: [&(dyn Fn(&KaplanMeierStep) -> Option<f64> + Sync); 5] = [
+    let q =
+        |value: &StepValue| first_time_reaching(&times, |i| value(&steps[i]).map(|v| 1.0 - v), 0.5);
+    let curves: [&StepValue; 5] = [
         &|s| Some(s.survival),
         &|s| s.log_interval.map(|i| i.lower),
         &|s| s.log_interval.map(|i| i.upper),
         &|s| s.log_log_interval.map(|i| i.lower),
         &|s| s.log_log_interval.map(|i| i.upper),
     ];
-    let found: Vec<Option<f64>> = curves.par_iter().map(|curve| q(*curve)).collect();
+    let found: Vec<Option<f64>> = curves.par_iter().map(|curve| q(curve)).collect();
     MedianSurvival {
         median: found[0],
         level: level.value(),
@@ -216,7 +239,11 @@ fn median_of(steps: &[KaplanMeierStep], level: ConfidenceLevel) -> MedianSurviva
 /// 3.5 `findq`: prepend (0, 0), drop repeated values (keeping the first time of each), then take
 /// the point with the smallest value at or above p ∓ √ε (R `approx(..., "constant", f = 1)`);
 /// where the last distinct value equals p, the midpoint up to the last time.
-pub(crate) fn first_time_reaching(times: &[f64], failure: impl Fn(usize) -> Option<f64>, p: f64) -> Option<f64> {
+pub(crate) fn first_time_reaching(
+    times: &[f64],
+    failure: impl Fn(usize) -> Option<f64>,
+    p: f64,
+) -> Option<f64> {
     let tolerance = f64::EPSILON.sqrt();
     let last_time = *times.last()?;
     let (low, high) = (p - tolerance, p + tolerance);
@@ -306,15 +333,30 @@ pub(crate) struct SortedTimes {
 
 impl SortedTimes {
     pub fn new(data: &[FollowUp]) -> Self {
-        let mut events: Vec<u64> = data.par_iter().filter(|r| r.event).map(|r| time_key(r.exit)).collect();
-        let mut censored: Vec<u64> = data.par_iter().filter(|r| !r.event).map(|r| time_key(r.exit)).collect();
+        let mut events: Vec<u64> = data
+            .par_iter()
+            .filter(|r| r.event)
+            .map(|r| time_key(r.exit))
+            .collect();
+        let mut censored: Vec<u64> = data
+            .par_iter()
+            .filter(|r| !r.event)
+            .map(|r| time_key(r.exit))
+            .collect();
         let mut entries: Vec<u64> = data
             .par_iter()
             .filter(|r| r.entry > f64::NEG_INFINITY)
             .map(|r| time_key(r.entry))
             .collect();
-        rayon::join(|| sort_keys(&mut events), || rayon::join(|| sort_keys(&mut censored), || sort_keys(&mut entries)));
-        SortedTimes { events, censored, entries }
+        rayon::join(
+            || sort_keys(&mut events),
+            || rayon::join(|| sort_keys(&mut censored), || sort_keys(&mut entries)),
+        );
+        SortedTimes {
+            events,
+            censored,
+            entries,
+        }
     }
 
     fn n_rows(&self) -> usize {
@@ -325,7 +367,8 @@ impl SortedTimes {
     pub fn n_at_risk(&self, t: f64) -> u64 {
         let key = time_key(t);
         let at_or_after = |keys: &[u64]| keys.len() - keys.partition_point(|&k| k < key);
-        (at_or_after(&self.events) + at_or_after(&self.censored) - at_or_after(&self.entries)) as u64
+        (at_or_after(&self.events) + at_or_after(&self.censored) - at_or_after(&self.entries))
+            as u64
     }
 
     /// One merge pass over the three sorted lists: counts, Kaplan–Meier product, Greenwood sum.
@@ -359,7 +402,11 @@ impl SortedTimes {
             if n_events > 0 {
                 let (at_risk, d) = (n_at_risk as f64, n_events as f64);
                 survival *= 1.0 - d / at_risk;
-                greenwood += if n_events == n_at_risk { f64::INFINITY } else { d / (at_risk * (at_risk - d)) };
+                greenwood += if n_events == n_at_risk {
+                    f64::INFINITY
+                } else {
+                    d / (at_risk * (at_risk - d))
+                };
             }
             out.push(ExitCount {
                 time: key_time(key),
@@ -381,18 +428,28 @@ mod tests {
 
     fn aml_maintained() -> Vec<FollowUp> {
         // R survival::aml, x = "Maintained" (Miller 1981), DOMAIN.md §5.7.
-        [(9.0, true), (13.0, true), (13.0, false), (18.0, true), (23.0, true), (28.0, false), (31.0, true)]
-            .into_iter()
-            .chain([(34.0, true), (45.0, false), (48.0, true), (161.0, false)])
-            .map(|(t, e)| FollowUp::new(t, e))
-            .collect()
+        [
+            (9.0, true),
+            (13.0, true),
+            (13.0, false),
+            (18.0, true),
+            (23.0, true),
+            (28.0, false),
+            (31.0, true),
+        ]
+        .into_iter()
+        .chain([(34.0, true), (45.0, false), (48.0, true), (161.0, false)])
+        .map(|(t, e)| FollowUp::new(t, e))
+        .collect()
     }
 
     fn aml_nonmaintained() -> Vec<FollowUp> {
-        [5.0, 5.0, 8.0, 8.0, 12.0, 16.0, 23.0, 27.0, 30.0, 33.0, 43.0, 45.0]
-            .into_iter()
-            .map(|t| FollowUp::new(t, t != 16.0))
-            .collect()
+        [
+            5.0, 5.0, 8.0, 8.0, 12.0, 16.0, 23.0, 27.0, 30.0, 33.0, 43.0, 45.0,
+        ]
+        .into_iter()
+        .map(|t| FollowUp::new(t, t != 16.0))
+        .collect()
     }
 
     /// (time, n, d, S, se(S), log lower, log upper, log-log lower, log-log upper) at event times.
@@ -404,16 +461,40 @@ mod tests {
         assert_eq!(events.len(), expected.len());
         for (s, e) in events.iter().zip(expected) {
             assert_eq!((s.time, s.n_at_risk, s.n_events), (e.0, e.1, e.2));
-            assert!((s.survival - e.3).abs() <= dp[0], "S at {}: {} vs {}", e.0, s.survival, e.3);
+            assert!(
+                (s.survival - e.3).abs() <= dp[0],
+                "S at {}: {} vs {}",
+                e.0,
+                s.survival,
+                e.3
+            );
             if e.3 == 0.0 {
-                assert!(s.std_error.is_nan() && s.log_interval.is_none() && s.log_log_interval.is_none());
+                assert!(
+                    s.std_error.is_nan()
+                        && s.log_interval.is_none()
+                        && s.log_log_interval.is_none()
+                );
                 continue;
             }
-            assert!((s.std_error - e.4).abs() <= dp[1], "se at {}: {} vs {}", e.0, s.std_error, e.4);
+            assert!(
+                (s.std_error - e.4).abs() <= dp[1],
+                "se at {}: {} vs {}",
+                e.0,
+                s.std_error,
+                e.4
+            );
             let log = s.log_interval.unwrap();
-            assert!((log.lower - e.5).abs() <= dp[2] && (log.upper - e.6).abs() <= dp[2], "log CI at {}: {log:?}", e.0);
+            assert!(
+                (log.lower - e.5).abs() <= dp[2] && (log.upper - e.6).abs() <= dp[2],
+                "log CI at {}: {log:?}",
+                e.0
+            );
             let ll = s.log_log_interval.unwrap();
-            assert!((ll.lower - e.7).abs() <= dp[3] && (ll.upper - e.8).abs() <= dp[3], "log-log CI at {}: {ll:?}", e.0);
+            assert!(
+                (ll.lower - e.7).abs() <= dp[3] && (ll.upper - e.8).abs() <= dp[3],
+                "log-log CI at {}: {ll:?}",
+                e.0
+            );
         }
     }
 
@@ -445,7 +526,17 @@ mod tests {
             (30.0, 4, 1, 0.2917, 0.1387, 0.1148, 0.741, 0.0724, 0.5609),
             (33.0, 3, 1, 0.1944, 0.1219, 0.0569, 0.664, 0.0312, 0.4614),
             (43.0, 2, 1, 0.0972, 0.0919, 0.0153, 0.620, 0.0057, 0.3489),
-            (45.0, 1, 1, 0.0, f64::NAN, f64::NAN, f64::NAN, f64::NAN, f64::NAN),
+            (
+                45.0,
+                1,
+                1,
+                0.0,
+                f64::NAN,
+                f64::NAN,
+                f64::NAN,
+                f64::NAN,
+                f64::NAN,
+            ),
         ];
         check(&aml_nonmaintained(), &expected, &[5e-5, 5e-5, 5e-4, 5e-5]);
     }
@@ -453,10 +544,20 @@ mod tests {
     #[test]
     fn aml_medians_match_r() {
         // DOMAIN.md §5.7 [C]: Maintained 31 (95% CI 18–NA), Nonmaintained 23 (8–NA).
-        let m = estimate(&aml_maintained(), &KaplanMeierOptions::default()).unwrap().median;
-        assert_eq!((m.median, m.log_lower, m.log_upper), (Some(31.0), Some(18.0), None));
-        let n = estimate(&aml_nonmaintained(), &KaplanMeierOptions::default()).unwrap().median;
-        assert_eq!((n.median, n.log_lower, n.log_upper), (Some(23.0), Some(8.0), None));
+        let m = estimate(&aml_maintained(), &KaplanMeierOptions::default())
+            .unwrap()
+            .median;
+        assert_eq!(
+            (m.median, m.log_lower, m.log_upper),
+            (Some(31.0), Some(18.0), None)
+        );
+        let n = estimate(&aml_nonmaintained(), &KaplanMeierOptions::default())
+            .unwrap()
+            .median;
+        assert_eq!(
+            (n.median, n.log_lower, n.log_upper),
+            (Some(23.0), Some(8.0), None)
+        );
     }
 
     #[test]
@@ -472,13 +573,29 @@ mod tests {
     fn median_when_the_curve_ends_at_one_half_matches_r() {
         // R 4.2.2, survival 3.5.3: quantile(survfit(Surv(c(1,2,3,4), c(1,1,0,0)) ~ 1), 0.5) gives
         // 3 (lower 1, upper NA): the curve stays at 1/2 from 2 to the last time 4.
-        let data: Vec<FollowUp> = [(1.0, true), (2.0, true), (3.0, false), (4.0, false)].map(|(t, e)| FollowUp::new(t, e)).to_vec();
-        let m = estimate(&data, &KaplanMeierOptions::default()).unwrap().median;
-        assert_eq!((m.median, m.log_lower, m.log_upper), (Some(3.0), Some(1.0), None));
+        let data: Vec<FollowUp> = [(1.0, true), (2.0, true), (3.0, false), (4.0, false)]
+            .map(|(t, e)| FollowUp::new(t, e))
+            .to_vec();
+        let m = estimate(&data, &KaplanMeierOptions::default())
+            .unwrap()
+            .median;
+        assert_eq!(
+            (m.median, m.log_lower, m.log_upper),
+            (Some(3.0), Some(1.0), None)
+        );
         // Same session: Surv(1:6, c(1,1,0,1,0,0)), conf.type = "log-log": median 4, lower 1, upper NA.
-        let data: Vec<FollowUp> = [1, 1, 0, 1, 0, 0].iter().enumerate().map(|(i, &e)| FollowUp::new(i as f64 + 1.0, e == 1)).collect();
-        let m = estimate(&data, &KaplanMeierOptions::default()).unwrap().median;
-        assert_eq!((m.median, m.log_log_lower, m.log_log_upper), (Some(4.0), Some(1.0), None));
+        let data: Vec<FollowUp> = [1, 1, 0, 1, 0, 0]
+            .iter()
+            .enumerate()
+            .map(|(i, &e)| FollowUp::new(i as f64 + 1.0, e == 1))
+            .collect();
+        let m = estimate(&data, &KaplanMeierOptions::default())
+            .unwrap()
+            .median;
+        assert_eq!(
+            (m.median, m.log_log_lower, m.log_log_upper),
+            (Some(4.0), Some(1.0), None)
+        );
     }
 
     #[test]
@@ -489,14 +606,21 @@ mod tests {
             FollowUp::with_entry(5.0, 8.0, true),
             FollowUp::new(3.0, true),
         ];
-        let options = KaplanMeierOptions { at_times: vec![0.0, 2.0, 2.5, 5.0, 5.5, 9.0, 10.0, 11.0], ..Default::default() };
+        let options = KaplanMeierOptions {
+            at_times: vec![0.0, 2.0, 2.5, 5.0, 5.5, 9.0, 10.0, 11.0],
+            ..Default::default()
+        };
         let fit = estimate(&data, &options).unwrap();
         // By hand from entry < t <= exit.
         let n: Vec<u64> = fit.at_times.iter().map(|a| a.n_at_risk).collect();
         assert_eq!(n, vec![1, 2, 3, 2, 3, 1, 1, 0]);
         // At the event times: t=3 (n=3: rows 0, 1, 3), t=8 (n=2: rows 0, 2), t=10 (n=1).
-        let at_events: Vec<(f64, u64)> =
-            fit.steps.iter().filter(|s| s.n_events > 0).map(|s| (s.time, s.n_at_risk)).collect();
+        let at_events: Vec<(f64, u64)> = fit
+            .steps
+            .iter()
+            .filter(|s| s.n_events > 0)
+            .map(|s| (s.time, s.n_at_risk))
+            .collect();
         assert_eq!(at_events, vec![(3.0, 3), (8.0, 2), (10.0, 1)]);
         let s = fit.at_times[5].survival;
         assert!((s - (2.0 / 3.0) * 0.5).abs() < 1e-15, "{s}");
@@ -544,8 +668,14 @@ mod tests {
 
     #[test]
     fn bad_input_is_an_error_naming_the_row() {
-        let err = estimate(&[FollowUp::new(1.0, true), FollowUp::with_entry(5.0, 4.0, true)], &KaplanMeierOptions::default())
-            .unwrap_err();
+        let err = estimate(
+            &[
+                FollowUp::new(1.0, true),
+                FollowUp::with_entry(5.0, 4.0, true),
+            ],
+            &KaplanMeierOptions::default(),
+        )
+        .unwrap_err();
         assert!(err.to_string().contains("row 1"), "{err}");
         assert!(estimate(&[], &KaplanMeierOptions::default()).is_err());
     }

@@ -6,10 +6,16 @@
 //! (`tests/reference/`). Confidence levels are explicit arguments; 95% is only a default of the
 //! callers.
 
+pub mod aalen_johansen;
+mod cholesky;
 pub mod control_chart;
+pub mod cox;
 pub mod error;
+pub mod follow_up;
 pub mod funnel;
 pub mod interval;
+pub mod kaplan_meier;
+pub mod log_rank;
 pub mod mantel_haenszel;
 pub mod poisson_rate;
 pub mod proportion;

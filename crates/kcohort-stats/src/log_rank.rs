@@ -13,9 +13,9 @@
 //! an extension R's `survdiff` does not offer. Check values: DOMAIN.md §5.8 (aml: O 7/11,
 //! E 10.69/7.31, χ² 3.40, p 0.0653) and `tests/reference/survival/log_rank.R`.
 
+use crate::StatsError;
 use crate::cholesky::{Cholesky, to_rows};
 use crate::follow_up::{FollowUp, check_length, rows_by_stratum, time_key, validate_intervals};
-use crate::StatsError;
 use rayon::prelude::*;
 use serde::Serialize;
 use statrs::distribution::{ChiSquared, ContinuousCDF};
@@ -43,7 +43,11 @@ pub struct LogRankGroup {
 }
 
 /// Tests equal survival across `groups` (one code per row), optionally within `strata`.
-pub fn test(data: &[FollowUp], groups: &[u32], strata: Option<&[u32]>) -> Result<LogRank, StatsError> {
+pub fn test(
+    data: &[FollowUp],
+    groups: &[u32],
+    strata: Option<&[u32]>,
+) -> Result<LogRank, StatsError> {
     check_length("groups", groups.len(), data.len())?;
     if let Some(s) = strata {
         check_length("strata", s.len(), data.len())?;
@@ -53,10 +57,17 @@ pub fn test(data: &[FollowUp], groups: &[u32], strata: Option<&[u32]>) -> Result
     codes.sort_unstable();
     codes.dedup();
     if codes.len() < 2 {
-        return Err(StatsError::invalid("groups", "at least two distinct group codes", codes.len()));
+        return Err(StatsError::invalid(
+            "groups",
+            "at least two distinct group codes",
+            codes.len(),
+        ));
     }
     let k = codes.len();
-    let index: Vec<usize> = groups.iter().map(|g| codes.binary_search(g).expect("code listed")).collect();
+    let index: Vec<usize> = groups
+        .iter()
+        .map(|g| codes.binary_search(g).expect("code listed"))
+        .collect();
 
     let strata_rows = rows_by_stratum(strata, data.len());
     let n_strata = strata_rows.len();
@@ -70,12 +81,16 @@ pub fn test(data: &[FollowUp], groups: &[u32], strata: Option<&[u32]>) -> Result
     let kept: Vec<usize> = (0..k).filter(|&g| totals.expected[g] > 0.0).collect();
     if kept.len() < 2 {
         return Err(StatsError::NotEstimable(
-            "the log-rank test needs at least two groups with someone at risk at an event time".into(),
+            "the log-rank test needs at least two groups with someone at risk at an event time"
+                .into(),
         ));
     }
     let tested = &kept[1..];
     let m = tested.len();
-    let difference: Vec<f64> = tested.iter().map(|&g| totals.observed[g] - totals.expected[g]).collect();
+    let difference: Vec<f64> = tested
+        .iter()
+        .map(|&g| totals.observed[g] - totals.expected[g])
+        .collect();
     let mut variance = vec![0.0; m * m];
     for (a, &g) in tested.iter().enumerate() {
         for (b, &h) in tested.iter().enumerate() {
@@ -91,7 +106,9 @@ pub fn test(data: &[FollowUp], groups: &[u32], strata: Option<&[u32]>) -> Result
         })?
         .quadratic_form(&difference);
     let degrees_of_freedom = m;
-    let p_value = ChiSquared::new(degrees_of_freedom as f64).expect("df >= 1").sf(chi_square);
+    let p_value = ChiSquared::new(degrees_of_freedom as f64)
+        .expect("df >= 1")
+        .sf(chi_square);
     Ok(LogRank {
         groups: (0..k)
             .map(|g| LogRankGroup {
@@ -118,7 +135,11 @@ struct Sums {
 
 impl Sums {
     fn zero(k: usize) -> Self {
-        Sums { observed: vec![0.0; k], expected: vec![0.0; k], variance: vec![0.0; k * k] }
+        Sums {
+            observed: vec![0.0; k],
+            expected: vec![0.0; k],
+            variance: vec![0.0; k * k],
+        }
     }
 
     fn add(mut self, other: Sums) -> Sums {
@@ -132,7 +153,8 @@ impl Sums {
 
 /// One ascending sweep over a stratum: rows join at their entry, leave after their exit.
 fn stratum_sums(data: &[FollowUp], group: &[usize], rows: &[usize], k: usize) -> Sums {
-    let mut by_exit: Vec<(u64, usize)> = rows.iter().map(|&i| (time_key(data[i].exit), i)).collect();
+    let mut by_exit: Vec<(u64, usize)> =
+        rows.iter().map(|&i| (time_key(data[i].exit), i)).collect();
     by_exit.sort_unstable();
     let mut by_entry: Vec<(u64, usize)> = rows
         .iter()
@@ -193,10 +215,26 @@ mod tests {
 
     fn aml() -> (Vec<FollowUp>, Vec<u32>) {
         // R survival::aml (DOMAIN.md §5.7); group 1 = Maintained, 0 = Nonmaintained.
-        let maintained = [(9.0, true), (13.0, true), (13.0, false), (18.0, true), (23.0, true), (28.0, false)]
-            .into_iter()
-            .chain([(31.0, true), (34.0, true), (45.0, false), (48.0, true), (161.0, false)]);
-        let other = [5.0, 5.0, 8.0, 8.0, 12.0, 16.0, 23.0, 27.0, 30.0, 33.0, 43.0, 45.0].map(|t| (t, t != 16.0));
+        let maintained = [
+            (9.0, true),
+            (13.0, true),
+            (13.0, false),
+            (18.0, true),
+            (23.0, true),
+            (28.0, false),
+        ]
+        .into_iter()
+        .chain([
+            (31.0, true),
+            (34.0, true),
+            (45.0, false),
+            (48.0, true),
+            (161.0, false),
+        ]);
+        let other = [
+            5.0, 5.0, 8.0, 8.0, 12.0, 16.0, 23.0, 27.0, 30.0, 33.0, 43.0, 45.0,
+        ]
+        .map(|t| (t, t != 16.0));
         let mut data = Vec::new();
         let mut groups = Vec::new();
         for (t, e) in maintained {
@@ -219,7 +257,11 @@ mod tests {
         let (non, main) = (&fit.groups[0], &fit.groups[1]);
         assert_eq!((main.observed, non.observed), (7.0, 11.0));
         assert!((main.expected - 10.69).abs() < 0.005 && (non.expected - 7.31).abs() < 0.005);
-        assert!((fit.variance[1][1] - 4.0076).abs() < 5e-5, "{:?}", fit.variance);
+        assert!(
+            (fit.variance[1][1] - 4.0076).abs() < 5e-5,
+            "{:?}",
+            fit.variance
+        );
         assert!((fit.chi_square - 3.3964).abs() < 5e-5);
         assert!((fit.p_value - 0.0653).abs() < 5e-5);
         assert_eq!(fit.degrees_of_freedom, 1);
@@ -232,7 +274,10 @@ mod tests {
         let one = test(&data, &groups, Some(&vec![7; data.len()])).unwrap();
         assert!((plain.chi_square - one.chi_square).abs() < 1e-12);
         // Entering at -1 is the same as being at risk from the start when all times are positive.
-        let late: Vec<FollowUp> = data.iter().map(|r| FollowUp::with_entry(-1.0, r.exit, r.event)).collect();
+        let late: Vec<FollowUp> = data
+            .iter()
+            .map(|r| FollowUp::with_entry(-1.0, r.exit, r.event))
+            .collect();
         assert!((test(&late, &groups, None).unwrap().chi_square - plain.chi_square).abs() < 1e-12);
     }
 

@@ -52,15 +52,6 @@ pub fn draw_peak(rng: &mut Rng) -> f64 {
     (p.min(10.5) * 10.0).round() / 10.0
 }
 
-/// Where an episode starts.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Onset {
-    /// In hospital, at least 48 h after admission.
-    HospitalAcquired,
-    /// In the community: the patient arrives at the emergency department with it.
-    Community,
-}
-
 /// Role of a planned potassium measurement.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum DrawRole {

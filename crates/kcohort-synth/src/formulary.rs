@@ -136,6 +136,7 @@ pub const FUROSEMIDE_IV: Drug = drug("C03CA01", "furosemide", LoopIv, "IV", "40"
 /// ATC codes whose administration within 6 h of a high potassium marks it as treated (the
 /// confirmation rule of the domain reference §1.3): calcium, regular insulin, nebulised
 /// salbutamol, IV bicarbonate, binders and IV loop diuretics.
+#[cfg(test)]
 pub const TREATMENT_ATC: &[&str] =
     &["A12AA03", "A10AB01", "R03AC02", "B05XA02", "V03AE10", "V03AE09", "V03AE01", "C03CA01"];
 

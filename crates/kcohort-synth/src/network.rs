@@ -51,10 +51,6 @@ pub struct Unit {
     pub kind: UnitKind,
 }
 
-pub const LARKMOOR_GENERAL: usize = 0;
-pub const FENWICK_COMMUNITY: usize = 1;
-pub const ASHBY_VALE: usize = 2;
-
 pub const SITES: [Site; 3] = [
     Site {
         name: "Larkmoor General",

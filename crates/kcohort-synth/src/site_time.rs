@@ -30,7 +30,6 @@ pub enum BadTimeForm {
 
 #[derive(Debug, Clone)]
 pub struct SiteTime {
-    zone: Tz,
     /// (first UTC second of the span, UTC offset in seconds during it), sorted by time.
     spans: Vec<(i64, i32)>,
     /// The distinct offsets of the table (two for a zone with daylight-saving time).
@@ -74,11 +73,7 @@ impl SiteTime {
         let mut offsets: Vec<i32> = spans.iter().map(|s| s.1).collect();
         offsets.sort_unstable();
         offsets.dedup();
-        Ok(SiteTime { zone, spans, offsets })
-    }
-
-    pub fn zone(&self) -> Tz {
-        self.zone
+        Ok(SiteTime { spans, offsets })
     }
 
     pub fn offset_at(&self, utc: i64) -> i32 {
@@ -124,12 +119,6 @@ impl SiteTime {
     /// Seconds since local midnight.
     pub fn seconds_of_day(&self, utc: i64) -> i64 {
         self.local(utc).rem_euclid(SECONDS_PER_DAY)
-    }
-
-    /// Local (year, month) of an instant.
-    pub fn year_month(&self, utc: i64) -> (i32, u32) {
-        let (y, m, _) = civil_from_days(self.local(utc).div_euclid(SECONDS_PER_DAY));
-        (y, m)
     }
 
     /// Writes the local time of `utc` in the given form.
@@ -289,6 +278,7 @@ mod tests {
     #[test]
     fn formatting_matches_chrono_tz_every_hour_of_the_period() {
         let st = vienna();
+        let zone: Tz = "Europe/Vienna".parse().unwrap();
         let from = days_from_civil(2023, 12, 1) * SECONDS_PER_DAY;
         let to = days_from_civil(2026, 2, 1) * SECONDS_PER_DAY;
         let mut t = from + 17; // odd seconds, to exercise the seconds field
@@ -298,7 +288,7 @@ mod tests {
             st.write(&mut buf, t, TimeForm::Seconds);
             let expected = chrono::DateTime::from_timestamp(t, 0)
                 .unwrap()
-                .with_timezone(&st.zone())
+                .with_timezone(&zone)
                 .format("%Y-%m-%dT%H:%M:%S")
                 .to_string();
             assert_eq!(std::str::from_utf8(&buf).unwrap(), expected);

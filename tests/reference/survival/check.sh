@@ -55,4 +55,4 @@ if [[ $status -ne 0 ]]; then
   echo "hint: if a script changed on purpose, run 'bash tests/reference/survival/check.sh --write' and review the diff" >&2
   exit 1
 fi
-echo "check.sh: all $(ls "$out" | wc -l) survival fixtures match ($(Rscript -e 'cat(R.version.string, "survival", as.character(packageVersion("survival")))'))"
+echo "check.sh: all $(ls "$out" | wc -l) survival fixtures match ($(Rscript -e 'cat(R.version.string, "; survival", as.character(packageVersion("survival")), "; cmprsk", as.character(packageVersion("cmprsk")))'))"

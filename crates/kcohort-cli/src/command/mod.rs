@@ -1,7 +1,9 @@
 //! The commands of `kcohort` and their arguments.
 
+mod bench;
 mod ingest;
 mod stats;
+mod synth;
 
 use clap::{Parser, Subcommand};
 
@@ -23,6 +25,10 @@ pub struct Cli {
 pub enum Command {
     /// Check every row of an extract and write it into a Parquet store (rejects kept with reasons).
     Ingest(ingest::IngestArgs),
+    /// Write a synthetic extract of the fictional Larkmoor Health network, with planted truths.
+    Synth(synth::SynthArgs),
+    /// Print speed and memory figures (rows/s, peak RSS) for the benchmarks.
+    Bench(bench::BenchArgs),
     /// Statistics on any table of your own (CSV or Parquet): proportions, rates, ratios, survival, Cox, charts.
     Stats(stats::StatsArgs),
 }
@@ -31,5 +37,7 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Ingest(args) => ingest::run(args),
         Command::Stats(args) => stats::run(args),
+        Command::Synth(args) => synth::run(args),
+        Command::Bench(args) => bench::run(args),
     }
 }

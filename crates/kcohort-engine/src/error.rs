@@ -1,0 +1,76 @@
+//! The one error type of the engine.
+
+use std::path::PathBuf;
+
+#[derive(Debug, thiserror::Error)]
+pub enum EngineError {
+    #[error(transparent)]
+    Study(#[from] kcohort_model::study::StudyError),
+
+    /// The store folder is not a readable kcohort store, or does not fit the study.
+    #[error("store {path}: {message}")]
+    Store { path: PathBuf, message: String },
+
+    #[error("{path}: {source}")]
+    Io {
+        path: PathBuf,
+        #[source]
+        source: std::io::Error,
+    },
+
+    /// A definition names a parameter the study does not provide, or a parameter cannot be
+    /// written as a literal of its type.
+    #[error("definition {definition}: {message}")]
+    Parameter { definition: String, message: String },
+
+    /// A definition file holds something other than `CREATE VIEW` statements and one final query.
+    #[error("definition {definition}: {message}")]
+    Definition { definition: String, message: String },
+
+    /// DataFusion failed to plan or run a definition.
+    #[error("definition {definition} failed: {source}")]
+    Query {
+        definition: String,
+        #[source]
+        source: Box<datafusion::error::DataFusionError>,
+    },
+
+    /// The memory pool was too small and the operation could not spill.
+    #[error(
+        "definition {definition} ran out of memory under the {limit_mib} MiB limit: {message}\n\
+         hint: raise --memory-limit, or free disk space for spill files in {temp_dir}"
+    )]
+    OutOfMemory {
+        definition: String,
+        limit_mib: usize,
+        temp_dir: String,
+        message: String,
+    },
+
+    #[error("writing Parquet {path}: {message}")]
+    ParquetOutput { path: PathBuf, message: String },
+
+    /// Another write changed the store while derive ran; nothing was committed.
+    #[error("store {path} changed while derive ran (generation {expected} became {found}); run derive again")]
+    Concurrent {
+        path: PathBuf,
+        expected: u64,
+        found: u64,
+    },
+}
+
+impl EngineError {
+    pub(crate) fn io(path: impl Into<PathBuf>, source: std::io::Error) -> EngineError {
+        EngineError::Io {
+            path: path.into(),
+            source,
+        }
+    }
+
+    pub(crate) fn store(path: impl Into<PathBuf>, message: impl Into<String>) -> EngineError {
+        EngineError::Store {
+            path: path.into(),
+            message: message.into(),
+        }
+    }
+}
