@@ -87,6 +87,9 @@ FROM lab_results
 WHERE loinc IN ($potassium_loinc);
 
 -- Steps 3-4: the used results in order, numbered (seq), each high, normal or in between.
+-- The windows run over all patients in one order (patient_id first) instead of PARTITION BY
+-- patient_id: DataFusion 55 pays a large cost per window partition, and most patients have few
+-- results. A row's predecessor therefore counts only when it is the same patient's.
 CREATE VIEW potassium_sequence AS
 SELECT
     patient_id,
@@ -96,36 +99,54 @@ SELECT
     value > $high_above AS is_high,
     value <= $normal_at_or_below AS is_normal,
     ROW_NUMBER() OVER w AS seq,
+    coalesce(LAG(patient_id) OVER w = patient_id, false) AS has_previous,
     LAG(value <= $normal_at_or_below) OVER w AS previous_is_normal,
-    LAG(collected_at) OVER w AS previous_collected_at
+    LAG(collected_at) OVER w AS previous_collected_at,
+    RANK() OVER (ORDER BY patient_id, collected_at) AS first_seq_at_time
 FROM potassium_results
 WHERE has_value AND NOT hemolysed
-WINDOW w AS (PARTITION BY patient_id ORDER BY collected_at, result_id);
+WINDOW w AS (ORDER BY patient_id, collected_at, result_id);
 
 -- Step 5: cut each patient's sequence into segments. A segment ends at each normal value and
--- before each gap of more than $max_gap_hours. An episode never spans a segment boundary: a
--- normal value closes it, and so does a gap. Inside a segment the episode (if any) opens at the
--- first high value and runs to the segment's last result; it is resolved exactly when that last
--- result is normal (only a segment's last result can be normal). first_seq_at_time and
--- last_seq_at_time number the first and last result collected at the same instant (for
--- n_results, decision b).
+-- before each gap of more than $max_gap_hours (and at each patient's last result). An episode
+-- never spans a segment boundary: a normal value closes it, and so does a gap. Inside a
+-- segment the episode (if any) opens at the first high value and runs to the segment's last
+-- result; it is resolved exactly when that last result is normal (only a segment's last result
+-- can be normal). Segment numbers are unique over all patients.
 CREATE VIEW potassium_segments AS
 SELECT
     *,
-    SUM(CASE
-            WHEN previous_is_normal THEN 1
-            WHEN collected_at > previous_collected_at + $max_gap_hours THEN 1
-            ELSE 0
-        END) OVER (PARTITION BY patient_id ORDER BY collected_at, result_id
-                   ROWS BETWEEN UNBOUNDED PRECEDING AND CURRENT ROW) AS segment,
-    MIN(seq) OVER same_instant AS first_seq_at_time,
-    MAX(seq) OVER same_instant AS last_seq_at_time
-FROM potassium_sequence
-WINDOW same_instant AS (PARTITION BY patient_id ORDER BY collected_at
-                        RANGE BETWEEN CURRENT ROW AND CURRENT ROW);
+    SUM(CASE WHEN starts_segment THEN 1 ELSE 0 END) OVER forward AS segment,
+    MAX(CASE WHEN starts_segment THEN seq END) OVER forward AS segment_start_seq,
+    MAX(CASE WHEN is_high THEN seq END) OVER forward AS latest_high_seq
+FROM (
+    SELECT
+        *,
+        coalesce(
+            NOT has_previous
+            OR previous_is_normal
+            OR collected_at > previous_collected_at + $max_gap_hours,
+            true) AS starts_segment
+    FROM potassium_sequence
+) AS sequence_with_starts
+WINDOW forward AS (ORDER BY patient_id, collected_at, result_id
+                   ROWS BETWEEN UNBOUNDED PRECEDING AND CURRENT ROW);
 
--- Step 5: one run per segment that has a high value (an episode before rebound merging). Values
--- before the first high of a segment are not high, so the segment's maximum is the run's peak.
+-- For n_results (decision b): first_seq_at_time (above) and last_seq_at_time number the first
+-- and last result of the patient collected at the same instant. Counted from the other end, a
+-- row's number minus the rank of its instant is the number of results at that instant after it.
+-- (A separate step, so that DataFusion sorts once forward for the steps above and once backward
+-- here.)
+CREATE VIEW potassium_instants AS
+SELECT
+    *,
+    seq + (ROW_NUMBER() OVER (ORDER BY patient_id DESC, collected_at DESC, result_id DESC)
+           - RANK() OVER (ORDER BY patient_id DESC, collected_at DESC)) AS last_seq_at_time
+FROM potassium_segments;
+
+-- Step 5: one run per segment that has a high value (an episode before rebound merging), made
+-- of the segment's rows from its first high value on (a row is in the run when a high value of
+-- its segment came at or before it).
 CREATE VIEW potassium_runs AS
 SELECT
     patient_id,
@@ -139,9 +160,9 @@ SELECT
     MAX(collected_at) AS end_at,
     bool_or(is_normal) AS resolved,
     SUM(CASE WHEN is_high THEN 1 ELSE 0 END) AS n_high
-FROM potassium_segments
-GROUP BY patient_id, segment
-HAVING bool_or(is_high);
+FROM potassium_instants
+WHERE latest_high_seq >= segment_start_seq
+GROUP BY patient_id, segment;
 
 -- Step 6: a run that starts strictly less than $rebound_hours after the end of the preceding
 -- run, when that run was resolved, continues its episode; every other run starts a new one.

@@ -15,20 +15,16 @@ pub fn render(manifest: &Manifest, record: &IngestRecord, unchanged: bool) -> St
     }
     let _ = writeln!(
         out,
-        "extract `{}` (ingest {} of the store, mode {}), site time zone {}, extract end {} ({})",
+        "extract `{}` (ingest {} of the store, mode {}); extract end {} ({})",
         record.extract_name,
         record.seq,
         record.mode,
-        manifest.site_timezone,
-        manifest.extract_end,
-        manifest.extract_end_source.replace('_', " ")
+        kcohort_ingest::timestamp::describe_instant(&manifest.extract_end, &manifest.site_timezone),
+        if manifest.extract_end_source == "given" { "as given" } else { "the latest timestamp in the extract" }
     );
     let _ = writeln!(out);
-    let _ = writeln!(
-        out,
-        "{:<18} {:>12} {:>12} {:>10} {:>10} {:>12}  {}",
-        "table", "rows read", "accepted", "rejected", "replaced", "in store", "check"
-    );
+    let h = ["table", "rows read", "accepted", "rejected", "replaced", "in store", "check"];
+    let _ = writeln!(out, "{:<18} {:>12} {:>12} {:>10} {:>10} {:>12}  {}", h[0], h[1], h[2], h[3], h[4], h[5], h[6]);
     for table in TableName::ALL {
         let Some(c) = record.tables.get(table.as_str()) else {
             continue;
@@ -89,21 +85,18 @@ pub fn render(manifest: &Manifest, record: &IngestRecord, unchanged: bool) -> St
             ));
         }
         if c.crlf_lines > 0 {
-            notes.push(format!(
-                "{t}: {} lines end in CR LF (read as line ends)",
-                c.crlf_lines
-            ));
+            notes.push(format!("{t}: {} in CR LF (read as line ends)", count(c.crlf_lines, "line ends", "lines end")));
         }
         if c.ambiguous_local_times > 0 {
             notes.push(format!(
-                "{t}: {} local times fall in a daylight-saving overlap; the earlier instant was taken",
-                c.ambiguous_local_times
+                "{t}: {} in a daylight-saving overlap (the repeated hour); the earlier instant was taken",
+                count(c.ambiguous_local_times, "local time falls", "local times fall")
             ));
         }
         if c.unmatched_encounter_refs > 0 {
             notes.push(format!(
-                "{t}: {} accepted rows name an encounter not in the extract or store (kept)",
-                c.unmatched_encounter_refs
+                "{t}: {} an encounter not in the extract or store (kept)",
+                count(c.unmatched_encounter_refs, "accepted row names", "accepted rows name")
             ));
         }
         if c.converted_units > 0 {
@@ -138,4 +131,9 @@ pub fn render(manifest: &Manifest, record: &IngestRecord, unchanged: bool) -> St
         }
     }
     out
+}
+
+/// "1 thing" / "2 things".
+fn count(n: u64, one: &str, many: &str) -> String {
+    if n == 1 { format!("1 {one}") } else { format!("{n} {many}") }
 }

@@ -87,7 +87,9 @@ pub async fn plan_definition(
             .statement_to_plan(statement)
             .await
             .map_err(|e| query_error(name, e))?;
-        options.verify_plan(&plan).map_err(|e| query_error(name, e))?;
+        options
+            .verify_plan(&plan)
+            .map_err(|e| query_error(name, e))?;
         let frame = ctx
             .execute_logical_plan(plan)
             .await
@@ -118,10 +120,12 @@ fn tokens(sql: &str) -> Vec<Token> {
     while i < chars.len() {
         let c = chars[i];
         let start_line = line;
-        let mut push = |text: String| out.push(Token {
-            text,
-            line: start_line,
-        });
+        let mut push = |text: String| {
+            out.push(Token {
+                text,
+                line: start_line,
+            })
+        };
         if c == '\n' {
             line += 1;
             i += 1;
@@ -144,11 +148,18 @@ fn tokens(sql: &str) -> Vec<Token> {
                 line += usize::from(chars[j] == '\n');
                 j += 1;
             }
-            push(chars[i..(j + 1).min(chars.len())].iter().collect::<String>().to_lowercase());
+            push(
+                chars[i..(j + 1).min(chars.len())]
+                    .iter()
+                    .collect::<String>()
+                    .to_lowercase(),
+            );
             i = j + 1;
         } else if c.is_alphanumeric() || c == '_' || c == '$' || c == '.' {
             let mut j = i + 1;
-            while j < chars.len() && (chars[j].is_alphanumeric() || chars[j] == '_' || chars[j] == '.') {
+            while j < chars.len()
+                && (chars[j].is_alphanumeric() || chars[j] == '_' || chars[j] == '.')
+            {
                 j += 1;
             }
             push(chars[i..j].iter().collect::<String>().to_lowercase());
@@ -219,7 +230,9 @@ fn has_subtraction(operand: &[Token]) -> bool {
     operand.windows(2).any(|w| {
         w[1].text == "-"
             && (w[0].text == ")"
-                || w[0].text.starts_with(|c: char| c.is_alphanumeric() || c == '_' || c == '\''))
+                || w[0]
+                    .text
+                    .starts_with(|c: char| c.is_alphanumeric() || c == '_' || c == '\''))
     })
 }
 
@@ -317,7 +330,11 @@ mod tests {
     fn every_definition_writes_windows_in_the_safe_form() {
         for d in DEFINITIONS {
             let bad = lint_time_windows(d.sql);
-            assert!(bad.is_empty(), "{} lines {bad:?}: write windows as `later > earlier + $window`", d.file);
+            assert!(
+                bad.is_empty(),
+                "{} lines {bad:?}: write windows as `later > earlier + $window`",
+                d.file
+            );
         }
     }
 }

@@ -14,16 +14,16 @@
 //! matter) and the text of every definition. When every derived table in the manifest carries
 //! the fingerprint of this run, derive does nothing.
 
+use crate::EngineError;
 use crate::definition::{DEFINITIONS, plan_definition};
 use crate::derived_output::{WrittenTable, hex, write_table};
 use crate::parameter::Parameters;
 use crate::session::{EngineOptions, register_contract_tables, register_parquet_files, session};
-use crate::EngineError;
 use datafusion::error::DataFusionError;
+use kcohort_model::Manifest;
 use kcohort_model::manifest::{StoredFile, StoredTable};
 use kcohort_model::store_layout::{DERIVED_DIR, MANIFEST_FILE, TEMP_PREFIX};
 use kcohort_model::study::Study;
-use kcohort_model::Manifest;
 use sha2::{Digest, Sha256};
 use std::collections::{BTreeMap, HashSet};
 use std::fs::File;
@@ -61,7 +61,10 @@ pub fn read_manifest(root: &Path) -> Result<Manifest, EngineError> {
     let path = root.join(MANIFEST_FILE);
     let text = std::fs::read_to_string(&path).map_err(|e| {
         if e.kind() == std::io::ErrorKind::NotFound {
-            EngineError::store(root, "has no manifest.json: it is not a kcohort store (run `kcohort ingest` first)")
+            EngineError::store(
+                root,
+                "has no manifest.json: it is not a kcohort store (run `kcohort ingest` first)",
+            )
         } else {
             EngineError::io(&path, e)
         }
@@ -69,7 +72,9 @@ pub fn read_manifest(root: &Path) -> Result<Manifest, EngineError> {
     Manifest::from_json(&text).map_err(|e| {
         EngineError::store(
             root,
-            format!("{MANIFEST_FILE} cannot be read ({e}); the store may be from another tool version"),
+            format!(
+                "{MANIFEST_FILE} cannot be read ({e}); the store may be from another tool version"
+            ),
         )
     })
 }
@@ -147,7 +152,7 @@ pub(crate) fn query_failure(
     if let DataFusionError::ResourcesExhausted(message) = error.find_root() {
         return EngineError::OutOfMemory {
             definition: definition.to_string(),
-            limit_mib: options.memory_limit_bytes >> 20,
+            limit_bytes: options.memory_limit_bytes,
             temp_dir: options.spill_dir_text(),
             message: message.clone(),
         };
@@ -228,7 +233,12 @@ pub async fn derive_async(
         let relative = derived_relative(d.table, generation, &fingerprint);
         let table = write_table(root, &relative, stream, &on_error).await?;
         let schema = crate::session::parquet_schema(&table.temp_path)?;
-        register_parquet_files(&ctx, d.table, &[table.temp_path.clone()], schema)?;
+        register_parquet_files(
+            &ctx,
+            d.table,
+            std::slice::from_ref(&table.temp_path),
+            schema,
+        )?;
         reports.push(DerivedTableReport {
             table: d.table.to_string(),
             rows: table.rows,

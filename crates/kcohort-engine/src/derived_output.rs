@@ -97,7 +97,9 @@ pub async fn write_table(
     query_error: &(dyn Fn(datafusion::error::DataFusionError) -> EngineError + Sync),
 ) -> Result<WrittenTable, EngineError> {
     let final_path = root.join(relative);
-    let dir = final_path.parent().expect("derived tables live in a folder");
+    let dir = final_path
+        .parent()
+        .expect("derived tables live in a folder");
     std::fs::create_dir_all(dir).map_err(|e| EngineError::io(dir, e))?;
     let temp_path = root.join(kcohort_model::store_layout::temp_name(relative));
     let fail = |message: String| EngineError::ParquetOutput {
@@ -134,7 +136,8 @@ pub async fn write_table(
     let file = inner
         .into_inner()
         .map_err(|e| EngineError::io(&temp_path, e.into_error()))?;
-    file.sync_all().map_err(|e| EngineError::io(&temp_path, e))?;
+    file.sync_all()
+        .map_err(|e| EngineError::io(&temp_path, e))?;
     Ok(WrittenTable {
         temp_path: temp_path.clone(),
         relative: relative.to_string(),

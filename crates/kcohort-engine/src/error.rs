@@ -4,7 +4,7 @@ use std::path::PathBuf;
 
 #[derive(Debug, thiserror::Error)]
 pub enum EngineError {
-    #[error(transparent)]
+    #[error("study: {0}")]
     Study(#[from] kcohort_model::study::StudyError),
 
     /// The store folder is not a readable kcohort store, or does not fit the study.
@@ -37,12 +37,13 @@ pub enum EngineError {
 
     /// The memory pool was too small and the operation could not spill.
     #[error(
-        "definition {definition} ran out of memory under the {limit_mib} MiB limit: {message}\n\
-         hint: raise --memory-limit, or free disk space for spill files in {temp_dir}"
+        "definition {definition} ran out of memory under the {} limit: {message}\n\
+         hint: raise --memory-limit, or free disk space for spill files in {temp_dir}",
+        human_bytes(*.limit_bytes)
     )]
     OutOfMemory {
         definition: String,
-        limit_mib: usize,
+        limit_bytes: usize,
         temp_dir: String,
         message: String,
     },
@@ -51,12 +52,29 @@ pub enum EngineError {
     ParquetOutput { path: PathBuf, message: String },
 
     /// Another write changed the store while derive ran; nothing was committed.
-    #[error("store {path} changed while derive ran (generation {expected} became {found}); run derive again")]
+    #[error(
+        "store {path} changed while derive ran (generation {expected} became {found}); run derive again"
+    )]
     Concurrent {
         path: PathBuf,
         expected: u64,
         found: u64,
     },
+}
+
+/// `2 GiB`, `512 MiB`, `4 KiB`, `100 bytes`.
+pub(crate) fn human_bytes(n: usize) -> String {
+    for (unit, shift) in [("GiB", 30), ("MiB", 20), ("KiB", 10)] {
+        if n >= 1 << shift {
+            let value = n as f64 / (1u64 << shift) as f64;
+            return if value.fract() == 0.0 {
+                format!("{value} {unit}")
+            } else {
+                format!("{value:.1} {unit}")
+            };
+        }
+    }
+    format!("{n} bytes")
 }
 
 impl EngineError {

@@ -227,7 +227,10 @@ mod tests {
         p.insert("high_above", ParamValue::Number(5.5));
         p.insert("cut", ParamValue::Number(100.0));
         p.insert("gap_hours", ParamValue::Micros(hours_to_micros(168.0)));
-        p.insert("codes", ParamValue::Codes(vec!["2823-3".into(), "6298-4".into()]));
+        p.insert(
+            "codes",
+            ParamValue::Codes(vec!["2823-3".into(), "6298-4".into()]),
+        );
         p.insert("end", ParamValue::Instant(1_700_000_000_000_000));
         p
     }
@@ -253,8 +256,14 @@ mod tests {
 
     #[test]
     fn leaves_strings_comments_and_identifiers_alone() {
-        check("'$high_above' -- $x\n$cut", "'$high_above' -- $x\nCAST(100.0 AS DOUBLE)");
-        check("\"$col\" /* $y */ $cut", "\"$col\" /* $y */ CAST(100.0 AS DOUBLE)");
+        check(
+            "'$high_above' -- $x\n$cut",
+            "'$high_above' -- $x\nCAST(100.0 AS DOUBLE)",
+        );
+        check(
+            "\"$col\" /* $y */ $cut",
+            "\"$col\" /* $y */ CAST(100.0 AS DOUBLE)",
+        );
         check("'it''s $x' || $cut", "'it''s $x' || CAST(100.0 AS DOUBLE)");
         check("a - b -- end", "a - b -- end");
     }
@@ -262,8 +271,18 @@ mod tests {
     #[test]
     fn refuses_unknown_positional_and_unsafe_values() {
         let p = params();
-        assert!(p.bind("t", "$nope").unwrap_err().to_string().contains("unknown parameter `$nope`"));
-        assert!(p.bind("t", "$1").unwrap_err().to_string().contains("positional"));
+        assert!(
+            p.bind("t", "$nope")
+                .unwrap_err()
+                .to_string()
+                .contains("unknown parameter `$nope`")
+        );
+        assert!(
+            p.bind("t", "$1")
+                .unwrap_err()
+                .to_string()
+                .contains("positional")
+        );
         let mut bad = Parameters::new();
         bad.insert("c", ParamValue::Codes(vec!["x') OR ('1".into()]));
         assert!(bad.bind("t", "$c").is_err());

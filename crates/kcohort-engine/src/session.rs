@@ -57,7 +57,7 @@ impl EngineOptions {
 
     pub(crate) fn spill_dir_text(&self) -> String {
         self.spill_dir.as_ref().map_or_else(
-            || std::env::temp_dir().display().to_string(),
+            || "the system's temporary folder".to_string(),
             |d| d.display().to_string(),
         )
     }
@@ -68,9 +68,8 @@ pub fn session(options: &EngineOptions) -> Result<SessionContext, EngineError> {
     let config = SessionConfig::new()
         .with_target_partitions(options.partitions())
         .with_information_schema(false);
-    let mut runtime = RuntimeEnvBuilder::new().with_memory_pool(Arc::new(FairSpillPool::new(
-        options.memory_limit_bytes,
-    )));
+    let mut runtime = RuntimeEnvBuilder::new()
+        .with_memory_pool(Arc::new(FairSpillPool::new(options.memory_limit_bytes)));
     if let Some(dir) = &options.spill_dir {
         runtime = runtime.with_temp_file_path(dir);
     }
@@ -115,17 +114,20 @@ pub fn register_parquet_files(
     let urls = files
         .iter()
         .map(|f| {
-            ListingTableUrl::parse(f.to_str().ok_or_else(|| {
-                EngineError::store(f, "the path is not valid UTF-8")
-            })?)
+            ListingTableUrl::parse(
+                f.to_str()
+                    .ok_or_else(|| EngineError::store(f, "the path is not valid UTF-8"))?,
+            )
             .map_err(fail)
         })
         .collect::<Result<Vec<_>, EngineError>>()?;
     let options =
         ListingOptions::new(Arc::new(ParquetFormat::default())).with_file_extension(".parquet");
-    let config = ListingTableConfig::new_with_multi_paths(urls)
-        .with_listing_options(options)
-        .with_schema(session_schema(&schema));
+    // Options are set through the field: `with_listing_options` debug-asserts that there are
+    // paths, and an empty table (no files) is legitimate here.
+    let mut config = ListingTableConfig::new_with_multi_paths(urls);
+    config.options = Some(options);
+    let config = config.with_schema(session_schema(&schema));
     let table = ListingTable::try_new(config).map_err(fail)?;
     ctx.deregister_table(name).map_err(fail)?;
     ctx.register_table(name, Arc::new(table)).map_err(fail)?;

@@ -104,7 +104,9 @@ impl AtcMatchesAny {
 fn string_literal(value: &ColumnarValue) -> Option<&str> {
     match value {
         ColumnarValue::Scalar(
-            ScalarValue::Utf8(Some(s)) | ScalarValue::Utf8View(Some(s)) | ScalarValue::LargeUtf8(Some(s)),
+            ScalarValue::Utf8(Some(s))
+            | ScalarValue::Utf8View(Some(s))
+            | ScalarValue::LargeUtf8(Some(s)),
         ) => Some(s),
         _ => None,
     }
@@ -130,7 +132,9 @@ impl ScalarUDFImpl for AtcMatchesAny {
 
     fn return_type(&self, arg_types: &[DataType]) -> Result<DataType> {
         if arg_types.len() < 2 {
-            return plan_err!("atc_matches_any(code, prefix, ...) needs a code and at least one prefix");
+            return plan_err!(
+                "atc_matches_any(code, prefix, ...) needs a code and at least one prefix"
+            );
         }
         Ok(DataType::Boolean)
     }

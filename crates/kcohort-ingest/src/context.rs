@@ -44,7 +44,7 @@ impl IdSet {
     }
 }
 
-/// The keys are already uniform hashes: fold them instead of hashing again.
+/// The keys are already uniform hashes (or small integers): fold them instead of hashing again.
 #[derive(Default)]
 pub struct FoldHasher(u64);
 
@@ -62,14 +62,18 @@ impl Hasher for FoldHasher {
     fn write_u128(&mut self, v: u128) {
         self.0 = (v as u64) ^ ((v >> 64) as u64);
     }
+    /// Small integer keys (e.g. hour numbers) are spread by a multiplicative (Fibonacci) hash.
+    fn write_i64(&mut self, v: i64) {
+        self.0 = (v as u64).wrapping_mul(0x9E37_79B9_7F4A_7C15);
+    }
 }
 
 #[derive(Debug)]
 pub struct IngestContext {
     pub clock: SiteClock,
-    /// Given extract end (UTC µs): start times after it are rejected. None: the default, the
-    /// latest timestamp of the extract, which no start time can exceed.
-    pub extract_end: Option<i64>,
+    /// Extract end (UTC µs), given or the latest timestamp of the extract: start times after it
+    /// are rejected.
+    pub extract_end: i64,
     /// Year of the extract end in the site time zone: the latest allowed birth year.
     pub extract_year: i32,
     /// Patients of the store and of this extract's accepted patient rows.
@@ -78,16 +82,6 @@ pub struct IngestContext {
     pub encounters: IdSet,
     /// Zoneless times in a DST overlap (counted per table by the caller).
     pub ambiguous_local_times: u64,
-    /// Latest accepted timestamp so far.
-    pub latest_time: Option<i64>,
-}
-
-impl IngestContext {
-    pub fn note_time(&mut self, us: i64) {
-        if self.latest_time.is_none_or(|t| us > t) {
-            self.latest_time = Some(us);
-        }
-    }
 }
 
 #[cfg(test)]

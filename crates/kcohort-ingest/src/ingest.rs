@@ -22,6 +22,8 @@ use std::path::Path;
 
 /// Rows per Arrow batch handed to the Parquet writer.
 const BATCH_ROWS: usize = 65_536;
+/// Rows read before the id set is sized for the whole file.
+const SIZING_SAMPLE_ROWS: u64 = 20_000;
 
 /// How an ingest relates to what the store already holds.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -168,12 +170,11 @@ pub fn ingest(
 
     let mut ctx = IngestContext {
         clock: SiteClock::new(zone),
-        extract_end: Some(extract_end),
+        extract_end,
         extract_year,
         patients: IdSet::default(),
         encounters: IdSet::default(),
         ambiguous_local_times: 0,
-        latest_time: None,
     };
     if let Some(m) = &base {
         load_ids(store_dir, m, TableName::Patients, &mut ctx.patients)?;
@@ -331,6 +332,19 @@ fn read_table(
             Err(e) => return Err(e),
         };
         run.counts.rows_read += 1;
+        if run.counts.rows_read == SIZING_SAMPLE_ROWS && total > 0 {
+            // Size the id set once for the whole file (estimated from the bytes per row so far):
+            // growing a set of millions of ids step by step costs more time and, at the last
+            // step, twice the memory.
+            let per_row = source.bytes_read().max(1) as f64 / SIZING_SAMPLE_ROWS as f64;
+            let expected = (total as f64 / per_row * 1.05) as usize;
+            run.accepted_ids.reserve(expected.saturating_sub(run.accepted_ids.len()));
+            match table {
+                TableName::Patients => ctx.patients.reserve(expected),
+                TableName::Encounters => ctx.encounters.reserve(expected),
+                _ => {}
+            }
+        }
         let verdict = check_record(&record, &map.file_index, map.file_width, width, |fields| {
             rows.accept(fields, ctx, run)
         });

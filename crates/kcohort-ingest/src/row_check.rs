@@ -211,9 +211,8 @@ impl<'a> RowCheck<'a> {
             );
             return None;
         }
-        if let (TimeRole::Start, Some(end)) = (time_role(self.spec(i)), ctx.extract_end)
-            && us > end
-        {
+        let end = ctx.extract_end;
+        if time_role(self.spec(i)) == TimeRole::Start && us > end {
             self.fail(
                 RejectReason::TimeOutOfRange,
                 i,
@@ -222,7 +221,6 @@ impl<'a> RowCheck<'a> {
             );
             return None;
         }
-        ctx.note_time(us);
         Some(us)
     }
 

@@ -9,7 +9,9 @@
 
 use chrono::{FixedOffset, LocalResult, NaiveDate, NaiveDateTime, NaiveTime, Offset, TimeZone};
 use chrono_tz::Tz;
+use crate::context::FoldHasher;
 use std::collections::HashMap;
+use std::hash::BuildHasherDefault;
 
 /// The expected form, quoted in every timestamp error.
 pub const TIMESTAMP_FORMS: &str = "2026-03-31T14:05, 2026-03-31T14:05:00, 2026-03-31T14:05:00.250, \
@@ -167,14 +169,14 @@ pub enum Resolved {
 #[derive(Debug)]
 pub struct SiteClock {
     zone: SiteZone,
-    hour_offsets: HashMap<i64, i32>,
+    hour_offsets: HashMap<i64, i32, BuildHasherDefault<FoldHasher>>,
 }
 
 impl SiteClock {
     pub fn new(zone: SiteZone) -> SiteClock {
         SiteClock {
             zone,
-            hour_offsets: HashMap::new(),
+            hour_offsets: HashMap::default(),
         }
     }
 
@@ -224,6 +226,20 @@ pub fn format_instant(us: i64) -> String {
     chrono::DateTime::from_timestamp_micros(us)
         .map(|t| t.format("%Y-%m-%dT%H:%M:%S%.6fZ").to_string())
         .unwrap_or_else(|| format!("{us} µs"))
+}
+
+/// An RFC 3339 instant shown in the site's local time for people, e.g.
+/// `2026-01-05 00:00 Europe/Vienna (2026-01-04 23:00 UTC)`. Unparseable input is returned as is.
+pub fn describe_instant(rfc3339: &str, zone: &str) -> String {
+    let (Ok(t), Ok(z)) = (chrono::DateTime::parse_from_rfc3339(rfc3339), SiteZone::parse(zone)) else {
+        return rfc3339.to_string();
+    };
+    let local = match z {
+        SiteZone::Named(tz) => t.with_timezone(&tz).format("%Y-%m-%d %H:%M").to_string(),
+        SiteZone::Fixed(off) => t.with_timezone(&off).format("%Y-%m-%d %H:%M").to_string(),
+    };
+    let utc = t.to_utc().format("%Y-%m-%d %H:%M").to_string();
+    if utc == local { format!("{local} {zone}") } else { format!("{local} {zone} ({utc} UTC)") }
 }
 
 #[cfg(test)]
@@ -340,6 +356,16 @@ mod tests {
             "2026-10-25T03:30",
             Some(Resolved::Exact(instant("2026-10-25T02:30:00Z"))),
         );
+    }
+
+    #[test]
+    fn instants_are_described_in_site_time() {
+        assert_eq!(
+            describe_instant("2026-01-04T23:00:00.000000Z", "Europe/Vienna"),
+            "2026-01-05 00:00 Europe/Vienna (2026-01-04 23:00 UTC)"
+        );
+        assert_eq!(describe_instant("2026-01-04T23:00:00Z", "UTC"), "2026-01-04 23:00 UTC");
+        assert_eq!(describe_instant("garbage", "UTC"), "garbage");
     }
 
     #[test]

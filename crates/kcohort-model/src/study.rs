@@ -27,7 +27,7 @@ pub struct Study {
 }
 
 /// Where the data come from.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
 #[serde(default, deny_unknown_fields)]
 pub struct Site {
     /// Site time zone (IANA name or fixed offset); empty = the one the store was ingested with.
@@ -80,14 +80,6 @@ pub struct CodeSet {
     pub atc: Vec<String>,
 }
 
-impl Default for Site {
-    fn default() -> Self {
-        Site {
-            timezone: String::new(),
-        }
-    }
-}
-
 impl Default for Potassium {
     fn default() -> Self {
         Potassium {
@@ -138,8 +130,14 @@ pub fn default_potassium_lowering() -> BTreeMap<String, CodeSet> {
 /// Drug classes that can raise potassium (DOMAIN.md §2.1).
 pub fn default_drug_classes() -> BTreeMap<String, CodeSet> {
     [
-        ("ace_inhibitor", code_set("ACE inhibitors", &["C09A", "C09B"])),
-        ("arb", code_set("angiotensin receptor blockers", &["C09C", "C09D"])),
+        (
+            "ace_inhibitor",
+            code_set("ACE inhibitors", &["C09A", "C09B"]),
+        ),
+        (
+            "arb",
+            code_set("angiotensin receptor blockers", &["C09C", "C09D"]),
+        ),
         (
             "renin_inhibitor",
             code_set(
@@ -147,7 +145,10 @@ pub fn default_drug_classes() -> BTreeMap<String, CodeSet> {
                 &["C09XA02", "C09XA52", "C09XA53", "C09XA54"],
             ),
         ),
-        ("mra", code_set("mineralocorticoid receptor antagonists", &["C03DA"])),
+        (
+            "mra",
+            code_set("mineralocorticoid receptor antagonists", &["C03DA"]),
+        ),
         (
             "potassium_sparing",
             code_set("ENaC blockers", &["C03DB", "C03EA", "C03EB"]),
@@ -163,7 +164,10 @@ pub fn default_drug_classes() -> BTreeMap<String, CodeSet> {
             code_set("calcineurin inhibitors", &["L04AD01", "L04AD02"]),
         ),
         ("nsaid", code_set("NSAIDs", &["M01A"])),
-        ("digoxin", code_set("digitalis glycosides", &["C01AA05", "C01AA04"])),
+        (
+            "digoxin",
+            code_set("digitalis glycosides", &["C01AA05", "C01AA04"]),
+        ),
         (
             "potassium",
             code_set(
@@ -366,7 +370,11 @@ pub struct StudyProblem {
 
 impl fmt::Display for StudyProblem {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        write!(f, "`{}` = {}: expected {}", self.key, self.found, self.expected)
+        write!(
+            f,
+            "`{}` = {}: expected {}",
+            self.key, self.found, self.expected
+        )
     }
 }
 
@@ -374,14 +382,14 @@ impl fmt::Display for StudyProblem {
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum StudyError {
     /// Not TOML, a value of the wrong type, or an unknown key.
-    #[error("study file line {line}, column {column}: {message}")]
+    #[error("line {line}, column {column}: {message}")]
     Parse {
         line: usize,
         column: usize,
         message: String,
     },
     /// Well-formed, but values out of their allowed range.
-    #[error("study file has {} value(s) out of range:\n{}", .0.len(), list(.0))]
+    #[error("{} value(s) out of range:\n{}", .0.len(), list(.0))]
     Invalid(Vec<StudyProblem>),
 }
 
@@ -459,7 +467,12 @@ impl Checker {
             if set.label.trim().is_empty() {
                 self.fail(&format!("{key}.label"), "\"\"", "a non-empty label");
             }
-            self.codes(&format!("{key}.atc"), &set.atc, is_valid_atc, "WHO ATC code or prefix (C, C09, C09A, C09AA, C09AA02)");
+            self.codes(
+                &format!("{key}.atc"),
+                &set.atc,
+                is_valid_atc,
+                "WHO ATC code or prefix (C, C09, C09A, C09AA, C09AA02)",
+            );
         }
     }
 
@@ -624,7 +637,10 @@ mod tests {
 
     #[test]
     fn default_file_parses_to_the_defaults() {
-        assert_eq!(Study::from_toml(DEFAULT_STUDY_TOML).unwrap(), Study::default());
+        assert_eq!(
+            Study::from_toml(DEFAULT_STUDY_TOML).unwrap(),
+            Study::default()
+        );
     }
 
     #[test]
@@ -685,14 +701,26 @@ mod tests {
 
     #[test]
     fn out_of_range_values_name_the_key_and_the_range() {
-        check_invalid("[episode]\nhigh_above = 0.5", "episode.high_above", "from 1 to 12");
+        check_invalid(
+            "[episode]\nhigh_above = 0.5",
+            "episode.high_above",
+            "from 1 to 12",
+        );
         check_invalid(
             "[episode]\nnormal_at_or_below = 6.0",
             "episode.normal_at_or_below",
             "from 1 to 5.5",
         );
-        check_invalid("[episode]\nmax_gap_hours = 0", "episode.max_gap_hours", "above 0");
-        check_invalid("[episode]\nrebound_hours = -1", "episode.rebound_hours", "from 0 to 8760");
+        check_invalid(
+            "[episode]\nmax_gap_hours = 0",
+            "episode.max_gap_hours",
+            "above 0",
+        );
+        check_invalid(
+            "[episode]\nrebound_hours = -1",
+            "episode.rebound_hours",
+            "from 0 to 8760",
+        );
     }
 
     #[test]
@@ -723,7 +751,11 @@ mod tests {
             "drug_classes.Bad",
             "lowercase",
         );
-        check_invalid("[site]\ntimezone = \"Europe/Berlin; x\"", "site.timezone", "IANA");
+        check_invalid(
+            "[site]\ntimezone = \"Europe/Berlin; x\"",
+            "site.timezone",
+            "IANA",
+        );
     }
 
     #[test]

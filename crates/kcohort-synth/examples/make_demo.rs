@@ -14,8 +14,13 @@ const DEMO_SEED: u64 = 20261201;
 const DEMO_PATIENTS: u64 = 3000;
 
 fn main() -> Result<(), Box<dyn std::error::Error>> {
-    let mut config = SynthConfig { patients: DEMO_PATIENTS, seed: DEMO_SEED, ..SynthConfig::default() };
-    let mut out = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../../synthetic_data/larkmoor-demo");
+    let mut config = SynthConfig {
+        patients: DEMO_PATIENTS,
+        seed: DEMO_SEED,
+        ..SynthConfig::default()
+    };
+    let mut out =
+        PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../../synthetic_data/larkmoor-demo");
     let mut args = std::env::args().skip(1);
     while let Some(arg) = args.next() {
         let mut value = || args.next().ok_or_else(|| format!("{arg} needs a value"));
@@ -23,7 +28,12 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
             "--patients" => config.patients = value()?.parse()?,
             "--seed" => config.seed = value()?.parse()?,
             "--out" => out = PathBuf::from(value()?),
-            other => return Err(format!("unknown argument `{other}`; expected --patients, --seed or --out").into()),
+            other => {
+                return Err(format!(
+                    "unknown argument `{other}`; expected --patients, --seed or --out"
+                )
+                .into());
+            }
         }
     }
     let started = Instant::now();
@@ -34,7 +44,8 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     for f in truth.files.values() {
         bytes += std::fs::metadata(out.join(&f.file))?.len();
     }
-    eprintln!("wrote {} patients to {}", config.patients, out.display());
+    let shown = out.canonicalize().unwrap_or_else(|_| out.clone());
+    eprintln!("wrote {} patients to {}", config.patients, shown.display());
     for (table, f) in &truth.files {
         eprintln!("  {table:<18} {:>11} rows", f.rows);
     }

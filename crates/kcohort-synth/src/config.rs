@@ -28,7 +28,7 @@ pub struct SynthConfig {
     /// Hazard of a true high-potassium episode per day at risk outside hospital for a patient
     /// with no risk factor (no factor active: every hazard ratio 1). Strong on purpose.
     pub community_hazard_per_day: f64,
-    /// Same, per day at risk in hospital (from 48 h after admission).
+    /// Same, per day at risk in hospital (from 49 h after admission).
     pub inpatient_hazard_per_day: f64,
     /// Multipliers of the hazard while a factor is present.
     pub hazard_ratios: HazardRatios,
@@ -121,7 +121,10 @@ impl HazardRatios {
             ("calcium_channel_blocker", self.calcium_channel_blocker),
             ("mra", self.mra),
             ("mra_egfr_below_45", self.mra_egfr_below_45),
-            ("potassium_sparing_diuretic", self.potassium_sparing_diuretic),
+            (
+                "potassium_sparing_diuretic",
+                self.potassium_sparing_diuretic,
+            ),
             ("beta_blocker", self.beta_blocker),
             ("trimethoprim", self.trimethoprim),
             ("heparin", self.heparin),
@@ -145,10 +148,10 @@ impl Default for SynthConfig {
             // and RAAS/MRA exposure (published community incidence of K > 5.5 is a few percent
             // a year in CKD, from memory).
             community_hazard_per_day: 0.000_06,
-            // About 0.9% per day at risk for a patient without factors: strong, so that the demo
+            // 3% per day at risk for a patient without factors: very strong, so that the demo
             // has a visible monthly count of hospital-acquired episodes (real wards see roughly
             // 1–4% of admissions with hospital-acquired K > 5.5, from memory).
-            inpatient_hazard_per_day: 0.009,
+            inpatient_hazard_per_day: 0.03,
             hazard_ratios: HazardRatios::default(),
             step_unit: network::DEFAULT_STEP_UNIT.into(),
             step_month: "2025-04".into(),
@@ -178,10 +181,18 @@ impl SynthConfig {
             found,
         };
         if self.patients == 0 || self.patients > 50_000_000 {
-            return Err(bad("patients", "a number of patients from 1 to 50,000,000", self.patients.to_string()));
+            return Err(bad(
+                "patients",
+                "a number of patients from 1 to 50,000,000",
+                self.patients.to_string(),
+            ));
         }
         if parse_year_month(&self.first_month).is_none() {
-            return Err(bad("first_month", "a month like 2024-01", self.first_month.clone()));
+            return Err(bad(
+                "first_month",
+                "a month like 2024-01",
+                self.first_month.clone(),
+            ));
         }
         if !(1..=240).contains(&self.months) {
             return Err(bad("months", "1 to 240 months", self.months.to_string()));
@@ -194,7 +205,11 @@ impl SynthConfig {
             ("inpatient_hazard_per_day", self.inpatient_hazard_per_day),
         ] {
             if !(value.is_finite() && (0.0..0.5).contains(&value)) {
-                return Err(bad(field, "a hazard per day from 0 to 0.5", value.to_string()));
+                return Err(bad(
+                    field,
+                    "a hazard per day from 0 to 0.5",
+                    value.to_string(),
+                ));
             }
         }
         for (name, value) in self.hazard_ratios.named() {
@@ -207,7 +222,11 @@ impl SynthConfig {
             }
         }
         if !(self.step_factor.is_finite() && self.step_factor > 0.0 && self.step_factor <= 50.0) {
-            return Err(bad("step_factor", "a multiplier above 0 and at most 50 (1 = no step)", self.step_factor.to_string()));
+            return Err(bad(
+                "step_factor",
+                "a multiplier above 0 and at most 50 (1 = no step)",
+                self.step_factor.to_string(),
+            ));
         }
         if network::unit_id(&self.step_unit).is_none() {
             let names: Vec<&str> = network::UNITS.iter().map(|u| u.name).collect();
@@ -218,12 +237,20 @@ impl SynthConfig {
             });
         }
         if parse_year_month(&self.step_month).is_none() {
-            return Err(bad("step_month", "a month like 2025-04", self.step_month.clone()));
+            return Err(bad(
+                "step_month",
+                "a month like 2025-04",
+                self.step_month.clone(),
+            ));
         }
         for (field, value, high) in [
             ("hemolysed_share", self.hemolysed_share, 0.5),
             ("spurious_high_share", self.spurious_high_share, 0.05),
-            ("hypoglycemia_after_insulin", self.hypoglycemia_after_insulin, 1.0),
+            (
+                "hypoglycemia_after_insulin",
+                self.hypoglycemia_after_insulin,
+                1.0,
+            ),
             ("severe_death_30d", self.severe_death_30d, 1.0),
             ("defect_rate", self.defect_rate, 0.05),
         ] {
@@ -250,7 +277,8 @@ mod tests {
 
     #[test]
     fn each_bad_setting_is_named() {
-        let cases: Vec<(&str, Box<dyn Fn(&mut SynthConfig)>)> = vec![
+        type Change = Box<dyn Fn(&mut SynthConfig)>;
+        let cases: Vec<(&str, Change)> = vec![
             ("patients", Box::new(|c| c.patients = 0)),
             ("first_month", Box::new(|c| c.first_month = "2024-1".into())),
             ("months", Box::new(|c| c.months = 0)),
@@ -259,7 +287,10 @@ mod tests {
             ("step_factor", Box::new(|c| c.step_factor = -1.0)),
             ("hemolysed_share", Box::new(|c| c.hemolysed_share = 1.5)),
             ("hazard_ratios", Box::new(|c| c.hazard_ratios.mra = 0.0)),
-            ("inpatient_hazard_per_day", Box::new(|c| c.inpatient_hazard_per_day = f64::NAN)),
+            (
+                "inpatient_hazard_per_day",
+                Box::new(|c| c.inpatient_hazard_per_day = f64::NAN),
+            ),
         ];
         for (field, change) in cases {
             let mut c = SynthConfig::default();

@@ -45,16 +45,31 @@ pub fn applicable(table: TableName) -> &'static [Defect] {
         // so that no real patient, and none of its rows, is rejected.
         TableName::Patients => &[BadNumber, BadTimestamp, DuplicateId],
         TableName::Encounters => &[BadTimestamp, EndBeforeStart, DuplicateId, UnknownPatient],
-        TableName::LabResults => {
-            &[BadNumber, BadTimestamp, ImpossibleValue, UnknownUnit, DuplicateId, UnknownPatient, EndBeforeStart]
-        }
-        TableName::MedicationEvents => &[BadNumber, BadTimestamp, EndBeforeStart, DuplicateId, UnknownPatient],
+        TableName::LabResults => &[
+            BadNumber,
+            BadTimestamp,
+            ImpossibleValue,
+            UnknownUnit,
+            DuplicateId,
+            UnknownPatient,
+            EndBeforeStart,
+        ],
+        TableName::MedicationEvents => &[
+            BadNumber,
+            BadTimestamp,
+            EndBeforeStart,
+            DuplicateId,
+            UnknownPatient,
+        ],
         TableName::Diagnoses => &[BadTimestamp, UnknownPatient],
     }
 }
 
 fn table_index(table: TableName) -> usize {
-    TableName::ALL.iter().position(|t| *t == table).expect("listed")
+    TableName::ALL
+        .iter()
+        .position(|t| *t == table)
+        .expect("listed")
 }
 
 #[derive(Debug)]
@@ -132,10 +147,15 @@ impl DefectPlanner {
         }
     }
 
-    /// Planted counts of one table by reject reason code.
+    /// Planted counts of one table by reject reason code (reasons with none planted left out,
+    /// as a reconciliation lists only reasons that occurred).
     pub fn counts_of(&self, table: TableName) -> std::collections::BTreeMap<String, u64> {
         let row = &self.counts[table_index(table)];
-        applicable(table).iter().map(|d| (d.reason().code().to_string(), row[d.index()])).collect()
+        applicable(table)
+            .iter()
+            .filter(|d| row[d.index()] > 0)
+            .map(|d| (d.reason().code().to_string(), row[d.index()]))
+            .collect()
     }
 }
 
@@ -161,7 +181,10 @@ mod tests {
         }
         for table in TableName::ALL {
             for d in applicable(table) {
-                assert!(p.counts[table_index(table)][d.index()] >= 1, "{table} {d:?}");
+                assert!(
+                    p.counts[table_index(table)][d.index()] >= 1,
+                    "{table} {d:?}"
+                );
             }
         }
         let total: u64 = p.counts.iter().flatten().sum();

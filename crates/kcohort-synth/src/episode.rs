@@ -2,7 +2,7 @@
 //! planned measurements and their values.
 //!
 //! Every planted episode is confirmed by the rule of the domain reference §1.3: a K-lowering
-//! treatment within 4.5 h of the onset draw, or (untreated) a repeat ≥ 5.6 mmol/L within 4.5 h.
+//! treatment within 4 h 10 min of the onset draw, or (untreated) a repeat ≥ 5.6 mmol/L within 4.5 h.
 //! No serum/plasma potassium below 5.1 is drawn between onset and normalisation, so no repeat
 //! refutes it. Normalisation is the first result ≤ 4.9; a rebound is a result ≥ 5.6 within 6–20 h
 //! after it, followed by a second normalisation.
@@ -48,7 +48,11 @@ pub const POTASSIUM_UPPER_LIMIT: f64 = 9.0;
 /// moderate and 12% severe, 4–5% above 7.0 — "most 5.6–6.4, some ≥ 6.5, a few > 7" (from memory
 /// of published case mixes, which vary widely).
 pub fn draw_peak(rng: &mut Rng) -> f64 {
-    let p = if rng.bernoulli(0.01) { rng.range(8.0, 10.5) } else { 5.6 + rng.exponential(1.0 / 0.42) };
+    let p = if rng.bernoulli(0.01) {
+        rng.range(8.0, 10.5)
+    } else {
+        5.6 + rng.exponential(1.0 / 0.42)
+    };
     (p.min(10.5) * 10.0).round() / 10.0
 }
 
@@ -134,9 +138,17 @@ pub fn plan(
     follow_up: Option<i64>,
     plan: &mut EpisodePlan,
 ) {
-    *plan = EpisodePlan { onset_at, peak, ..EpisodePlan::default() };
+    *plan = EpisodePlan {
+        onset_at,
+        peak,
+        ..EpisodePlan::default()
+    };
     let severity = Severity::of(peak);
-    plan.draws.push(PlannedDraw { at: onset_at, role: DrawRole::Onset, potassium: peak });
+    plan.draws.push(PlannedDraw {
+        at: onset_at,
+        role: DrawRole::Onset,
+        potassium: peak,
+    });
 
     // Treatment: share treated by severity after Singer et al. 2017 (domain reference §3:
     // 36% at 5.5–6.0, 77% above 6.0), raised for severe (UKKA: always treat ≥ 6.5).
@@ -150,20 +162,29 @@ pub fn plan(
     let mut treatment_at = onset_at;
     if plan.treated {
         // Result in 20–50 min, then a lognormal delay to the first drug (median 50 min); the
-        // ED median in the domain reference is 117 min from triage. Capped at 4.5 h.
+        // ED median in the domain reference is 117 min from triage. Capped at 3.5 h, so every
+        // drug of the bundle (given over 40 minutes) is in by 4 h 10 min.
         let delay = rng.range(20.0, 50.0) * 60.0 + rng.lognormal(50.0 * 60.0, 0.6);
-        treatment_at = onset_at + (delay as i64).clamp(15 * MINUTE, 270 * MINUTE);
+        treatment_at = onset_at + (delay as i64).clamp(15 * MINUTE, 210 * MINUTE);
         treat(rng, plan, severity, treatment_at, config);
     } else {
         // Untreated: a confirming repeat within 1.5–4.5 h, still high.
         let v = (peak - rng.range(0.0, 0.3)).max(5.6);
-        plan.draws.push(PlannedDraw { at: onset_at + hours(rng, 1.5, 4.5), role: DrawRole::Confirm, potassium: v });
+        plan.draws.push(PlannedDraw {
+            at: onset_at + hours(rng, 1.5, 4.5),
+            role: DrawRole::Confirm,
+            potassium: v,
+        });
     }
     if goes_home {
         plan.normalised_at = None;
         match follow_up {
             Some(at) => {
-                plan.draws.push(PlannedDraw { at, role: DrawRole::Normalising, potassium: normal_value(rng) });
+                plan.draws.push(PlannedDraw {
+                    at,
+                    role: DrawRole::Normalising,
+                    potassium: normal_value(rng),
+                });
                 plan.end_at = at;
             }
             None => plan.end_at = plan.early_care_until() + 36 * SECONDS_PER_HOUR,
@@ -174,11 +195,19 @@ pub fn plan(
         // Recheck after treatment (audits: 62% within 2 h, domain reference §3; here 80%).
         if rng.bernoulli(0.8) {
             let v = (peak - rng.range(0.4, 1.1)).max(5.1);
-            plan.draws.push(PlannedDraw { at: treatment_at + hours(rng, 1.0, 3.0), role: DrawRole::Recheck, potassium: v });
+            plan.draws.push(PlannedDraw {
+                at: treatment_at + hours(rng, 1.0, 3.0),
+                role: DrawRole::Recheck,
+                potassium: v,
+            });
         }
         if severity != Severity::Mild && rng.bernoulli(0.5) {
             let v = (peak - rng.range(0.3, 1.2)).max(5.1);
-            plan.draws.push(PlannedDraw { at: treatment_at + hours(rng, 4.0, 6.0), role: DrawRole::Recheck, potassium: v });
+            plan.draws.push(PlannedDraw {
+                at: treatment_at + hours(rng, 4.0, 6.0),
+                role: DrawRole::Recheck,
+                potassium: v,
+            });
         }
     }
     // Normalisation (first K ≤ 4.9) after a lognormal time: median 22 h treated, 36 h
@@ -187,23 +216,43 @@ pub fn plan(
     let t_norm = (rng.lognormal(median, 0.5).clamp(8.0, 144.0) * HOUR) as i64;
     let latest_planned = plan.draws.iter().map(|d| d.at).max().unwrap_or(onset_at);
     let normalised_at = (onset_at + t_norm).max(latest_planned + 2 * SECONDS_PER_HOUR);
-    plan.draws.push(PlannedDraw { at: normalised_at, role: DrawRole::Normalising, potassium: normal_value(rng) });
+    plan.draws.push(PlannedDraw {
+        at: normalised_at,
+        role: DrawRole::Normalising,
+        potassium: normal_value(rng),
+    });
     plan.normalised_at = Some(normalised_at);
     plan.end_at = normalised_at;
     // Rebound within 24 h of normalisation: 15% after insulin (its effect wanes after 4–6 h,
     // domain reference §3), 5% otherwise (no authoritative rate; ours).
-    let p_rebound = if plan.insulin_at.is_some() { 0.15 } else { 0.05 };
+    let p_rebound = if plan.insulin_at.is_some() {
+        0.15
+    } else {
+        0.05
+    };
     if rng.bernoulli(p_rebound) {
         plan.rebound = true;
         let at = normalised_at + hours(rng, 6.0, 20.0);
         let v = rng.range(5.6, peak.clamp(5.7, 6.2));
-        plan.draws.push(PlannedDraw { at, role: DrawRole::Rebound, potassium: (v * 10.0).round() / 10.0 });
+        plan.draws.push(PlannedDraw {
+            at,
+            role: DrawRole::Rebound,
+            potassium: (v * 10.0).round() / 10.0,
+        });
         if rng.bernoulli(0.6) {
             let binder = rng.pick(formulary::BINDERS);
-            plan.doses.push(PlannedDose { at: at + hours(rng, 1.0, 3.0), end_at: None, drug: binder });
+            plan.doses.push(PlannedDose {
+                at: at + hours(rng, 1.0, 3.0),
+                end_at: None,
+                drug: binder,
+            });
         }
         let again = at + hours(rng, 12.0, 30.0);
-        plan.draws.push(PlannedDraw { at: again, role: DrawRole::Renormalising, potassium: normal_value(rng) });
+        plan.draws.push(PlannedDraw {
+            at: again,
+            role: DrawRole::Renormalising,
+            potassium: normal_value(rng),
+        });
         plan.end_at = again;
     }
     if severity == Severity::Severe && rng.bernoulli(config.severe_death_30d) {
@@ -234,13 +283,25 @@ fn treat(rng: &mut Rng, plan: &mut EpisodePlan, severity: Severity, at: i64, con
     }
     let minutes = |m: i64| at + m * MINUTE;
     if given[0] {
-        plan.doses.push(PlannedDose { at: minutes(0), end_at: Some(minutes(10)), drug: &formulary::CALCIUM_GLUCONATE });
+        plan.doses.push(PlannedDose {
+            at: minutes(0),
+            end_at: Some(minutes(10)),
+            drug: &formulary::CALCIUM_GLUCONATE,
+        });
     }
     if given[1] {
         let ins = minutes(5);
         plan.insulin_at = Some(ins);
-        plan.doses.push(PlannedDose { at: ins, end_at: Some(ins + 15 * MINUTE), drug: &formulary::INSULIN_SOLUBLE });
-        plan.doses.push(PlannedDose { at: ins + MINUTE, end_at: Some(ins + 16 * MINUTE), drug: &formulary::GLUCOSE_IV });
+        plan.doses.push(PlannedDose {
+            at: ins,
+            end_at: Some(ins + 15 * MINUTE),
+            drug: &formulary::INSULIN_SOLUBLE,
+        });
+        plan.doses.push(PlannedDose {
+            at: ins + MINUTE,
+            end_at: Some(ins + 16 * MINUTE),
+            drug: &formulary::GLUCOSE_IV,
+        });
         // A glucose check 1–4 h later in 90% of treatments (UKKA asks for hourly checks; audits
         // find them missing in some); hypoglycemia < 70 mg/dL with the planted probability.
         if rng.bernoulli(0.9) {
@@ -261,14 +322,26 @@ fn treat(rng: &mut Rng, plan: &mut EpisodePlan, severity: Severity, at: i64, con
         });
     }
     if given[3] {
-        plan.doses.push(PlannedDose { at: minutes(15), end_at: Some(minutes(45)), drug: &formulary::SODIUM_BICARBONATE });
+        plan.doses.push(PlannedDose {
+            at: minutes(15),
+            end_at: Some(minutes(45)),
+            drug: &formulary::SODIUM_BICARBONATE,
+        });
     }
     if given[4] {
         let binder = rng.pick(formulary::BINDERS);
-        plan.doses.push(PlannedDose { at: minutes(30), end_at: None, drug: binder });
+        plan.doses.push(PlannedDose {
+            at: minutes(30),
+            end_at: None,
+            drug: binder,
+        });
     }
     if given[5] {
-        plan.doses.push(PlannedDose { at: minutes(40), end_at: None, drug: &formulary::FUROSEMIDE_IV });
+        plan.doses.push(PlannedDose {
+            at: minutes(40),
+            end_at: None,
+            drug: &formulary::FUROSEMIDE_IV,
+        });
     }
 }
 
@@ -306,12 +379,13 @@ mod tests {
             let peak = draw_peak(&mut rng);
             let goes_home = i % 4 == 0;
             let follow_up = goes_home.then_some(1_000_000 + 2 * SECONDS_PER_DAY);
-            plan(&mut rng, &config, 1_000_000, peak, goes_home, follow_up, &mut p);
+            plan(
+                &mut rng, &config, 1_000_000, peak, goes_home, follow_up, &mut p,
+            );
             let treated_early = p.doses.iter().any(|d| d.at - p.onset_at <= 270 * 60);
-            let repeat_high = p
-                .draws
-                .iter()
-                .any(|d| d.role != DrawRole::Onset && d.at - p.onset_at <= 270 * 60 && d.potassium >= 5.6);
+            let repeat_high = p.draws.iter().any(|d| {
+                d.role != DrawRole::Onset && d.at - p.onset_at <= 270 * 60 && d.potassium >= 5.6
+            });
             assert!(treated_early || repeat_high, "unconfirmed plan {p:?}");
             for d in &p.draws {
                 if d.at - p.onset_at < six_hours {

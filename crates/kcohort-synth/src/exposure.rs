@@ -76,16 +76,36 @@ impl OutpatientDrugs {
     }
 
     /// Draws the patient's courses over [start, end) and builds dispensings and eras.
-    pub fn plan(&mut self, profile: &Profile, rng: &mut Rng, time: &SiteTime, start: i64, end: i64) {
+    pub fn plan(
+        &mut self,
+        profile: &Profile,
+        rng: &mut Rng,
+        time: &SiteTime,
+        start: i64,
+        end: i64,
+    ) {
         self.clear();
-        let mut plan = Planner { out: self, rng, time, start, end, supply: 0 };
+        let mut plan = Planner {
+            out: self,
+            rng,
+            time,
+            start,
+            end,
+            supply: 0,
+        };
         // Patient's habitual supply: 90 days (60%) or 30 days (40%) (common practice).
         plan.supply = if plan.rng.bernoulli(0.6) { 90 } else { 30 };
         let p = profile;
 
         // RAAS inhibitors: hypertension, heart failure, diabetic kidney disease or CKD.
         if p.hypertension || p.heart_failure || p.egfr < 45.0 || (p.diabetes && p.egfr < 60.0) {
-            let prevalent = if p.heart_failure { 0.7 } else if p.diabetes { 0.55 } else { 0.5 };
+            let prevalent = if p.heart_failure {
+                0.7
+            } else if p.diabetes {
+                0.55
+            } else {
+                0.5
+            };
             let rate = if p.heart_failure { 0.20 } else { 0.10 };
             let drug = if p.heart_failure && plan.rng.bernoulli(0.2) {
                 &formulary::SACUBITRIL_VALSARTAN
@@ -94,12 +114,28 @@ impl OutpatientDrugs {
             } else {
                 plan.rng.pick(formulary::ARBS)
             };
-            plan.chronic(drug, prevalent, rate, 0.25, Some(Factor::RaasInhibitor), Some(Tracked::Raas));
+            plan.chronic(
+                drug,
+                prevalent,
+                rate,
+                0.25,
+                Some(Factor::RaasInhibitor),
+                Some(Tracked::Raas),
+            );
         }
         // Dihydropyridine calcium-channel blockers: hypertension.
         if p.hypertension {
-            let drug = plan.rng.pick(formulary::CALCIUM_CHANNEL_BLOCKERS);
-            plan.chronic(drug, 0.28, 0.07, 0.25, Some(Factor::CalciumChannelBlocker), Some(Tracked::Ccb));
+            // Amlodipine is by far the most used (from memory): 70%, the others 15% each.
+            let drug =
+                &formulary::CALCIUM_CHANNEL_BLOCKERS[plan.rng.categorical(&[0.7, 0.15, 0.15])];
+            plan.chronic(
+                drug,
+                0.28,
+                0.07,
+                0.25,
+                Some(Factor::CalciumChannelBlocker),
+                Some(Tracked::Ccb),
+            );
         }
         // MRAs: heart failure; a few resistant hypertensives.
         let (mra_prevalent, mra_rate) = if p.heart_failure {
@@ -110,8 +146,19 @@ impl OutpatientDrugs {
             (0.0, 0.0)
         };
         if mra_rate > 0.0 {
-            let drug = if plan.rng.bernoulli(0.8) { &formulary::MRAS[0] } else { &formulary::MRAS[1] };
-            plan.chronic(drug, mra_prevalent, mra_rate, 0.35, Some(Factor::Mra), Some(Tracked::Mra));
+            let drug = if plan.rng.bernoulli(0.8) {
+                &formulary::MRAS[0]
+            } else {
+                &formulary::MRAS[1]
+            };
+            plan.chronic(
+                drug,
+                mra_prevalent,
+                mra_rate,
+                0.35,
+                Some(Factor::Mra),
+                Some(Tracked::Mra),
+            );
         }
         // Beta-blockers: heart failure, hypertension, arrhythmia.
         let (bb_prevalent, bb_rate) = if p.heart_failure {
@@ -121,8 +168,19 @@ impl OutpatientDrugs {
         } else {
             (0.03, 0.005)
         };
-        let drug = if p.heart_failure { &formulary::BETA_BLOCKERS[0] } else { plan.rng.pick(formulary::BETA_BLOCKERS) };
-        plan.chronic(drug, bb_prevalent, bb_rate, 0.2, Some(Factor::BetaBlocker), None);
+        let drug = if p.heart_failure {
+            &formulary::BETA_BLOCKERS[0]
+        } else {
+            plan.rng.pick(formulary::BETA_BLOCKERS)
+        };
+        plan.chronic(
+            drug,
+            bb_prevalent,
+            bb_rate,
+            0.2,
+            Some(Factor::BetaBlocker),
+            None,
+        );
         // Loop diuretics (no planted effect): heart failure, advanced CKD.
         let loop_prevalent = if p.heart_failure {
             0.6
@@ -137,10 +195,24 @@ impl OutpatientDrugs {
             plan.chronic(drug, 1.0, 0.0, 0.2, None, None);
         }
         if p.hypertension {
-            plan.chronic(&formulary::AMILORIDE, 0.015, 0.0, 0.2, Some(Factor::PotassiumSparingDiuretic), None);
+            plan.chronic(
+                &formulary::AMILORIDE,
+                0.015,
+                0.0,
+                0.2,
+                Some(Factor::PotassiumSparingDiuretic),
+                None,
+            );
         }
         let k_prevalent = if on_loop { 0.15 } else { 0.004 };
-        plan.chronic(&formulary::POTASSIUM_CHLORIDE_ORAL, k_prevalent, 0.0, 0.4, Some(Factor::PotassiumSupplementOral), None);
+        plan.chronic(
+            &formulary::POTASSIUM_CHLORIDE_ORAL,
+            k_prevalent,
+            0.0,
+            0.4,
+            Some(Factor::PotassiumSupplementOral),
+            None,
+        );
         if p.diabetes {
             if p.egfr >= 30.0 {
                 plan.chronic(&formulary::METFORMIN, 0.6, 0.05, 0.1, None, None);
@@ -153,7 +225,11 @@ impl OutpatientDrugs {
         // Short courses: NSAIDs (fewer in CKD) and trimethoprim (urinary infections, more in
         // women), each one dispensing.
         let nsaid_rate = if p.egfr < 45.0 { 0.08 } else { 0.22 };
-        plan.courses(nsaid_rate, |rng| (rng.pick(formulary::NSAIDS), *rng.pick(&[10u16, 14, 30])), Factor::Nsaid);
+        plan.courses(
+            nsaid_rate,
+            |rng| (rng.pick(formulary::NSAIDS), *rng.pick(&[10u16, 14, 30])),
+            Factor::Nsaid,
+        );
         let tmp_rate = if p.female { 0.16 } else { 0.08 };
         plan.courses(
             tmp_rate,
@@ -212,7 +288,8 @@ impl Planner<'_> {
     fn pharmacy_time(&mut self, t: i64) -> i64 {
         let local_day = self.time.local(t).div_euclid(SECONDS_PER_DAY);
         let seconds = self.rng.int_between(9 * 3600, 18 * 3600);
-        self.time.from_local(local_day * SECONDS_PER_DAY + seconds)
+        self.time
+            .instant_of_local(local_day * SECONDS_PER_DAY + seconds)
     }
 
     fn era(&mut self, factor: Option<Factor>, from: i64, to: i64) {
@@ -248,7 +325,10 @@ impl Planner<'_> {
             return;
         }
         if let Some(tr) = tracked {
-            self.out.first_use[tr as usize] = FirstUse { at: None, initiated: !is_prevalent };
+            self.out.first_use[tr as usize] = FirstUse {
+                at: None,
+                initiated: !is_prevalent,
+            };
         }
         let supply = self.supply;
         let supply_seconds = i64::from(supply) * SECONDS_PER_DAY;
@@ -258,7 +338,11 @@ impl Planner<'_> {
             if at >= self.end {
                 break;
             }
-            self.out.dispensings.push(Dispensing { at, drug, days_supply: supply });
+            self.out.dispensings.push(Dispensing {
+                at,
+                drug,
+                days_supply: supply,
+            });
             if let Some(tr) = tracked {
                 let first = &mut self.out.first_use[tr as usize];
                 if first.at.is_none() {
@@ -266,7 +350,9 @@ impl Planner<'_> {
                 }
             }
             era = match era {
-                Some((s, e)) if at <= e + BRIDGED_GAP_DAYS * SECONDS_PER_DAY => Some((s, e.max(at + supply_seconds))),
+                Some((s, e)) if at <= e + BRIDGED_GAP_DAYS * SECONDS_PER_DAY => {
+                    Some((s, e.max(at + supply_seconds)))
+                }
                 Some((s, e)) => {
                     self.era(factor, s, e);
                     Some((at, at + supply_seconds))
@@ -293,7 +379,12 @@ impl Planner<'_> {
     }
 
     /// Short courses at `per_year`, one dispensing each.
-    fn courses(&mut self, per_year: f64, mut choose: impl FnMut(&mut Rng) -> (&'static Drug, u16), factor: Factor) {
+    fn courses(
+        &mut self,
+        per_year: f64,
+        mut choose: impl FnMut(&mut Rng) -> (&'static Drug, u16),
+        factor: Factor,
+    ) {
         let day = SECONDS_PER_DAY as f64;
         let mut t = self.start;
         loop {
@@ -306,7 +397,11 @@ impl Planner<'_> {
             if at >= self.end {
                 break;
             }
-            self.out.dispensings.push(Dispensing { at, drug, days_supply: supply });
+            self.out.dispensings.push(Dispensing {
+                at,
+                drug,
+                days_supply: supply,
+            });
             self.era(Some(factor), at, at + i64::from(supply) * SECONDS_PER_DAY);
             t = at + i64::from(supply) * SECONDS_PER_DAY;
         }
@@ -332,7 +427,14 @@ mod tests {
             let raas: Vec<&Dispensing> = drugs
                 .dispensings
                 .iter()
-                .filter(|d| matches!(d.drug.class, crate::formulary::DrugClass::AceInhibitor | crate::formulary::DrugClass::AngiotensinReceptorBlocker | crate::formulary::DrugClass::NeprilysinArb))
+                .filter(|d| {
+                    matches!(
+                        d.drug.class,
+                        crate::formulary::DrugClass::AceInhibitor
+                            | crate::formulary::DrugClass::AngiotensinReceptorBlocker
+                            | crate::formulary::DrugClass::NeprilysinArb
+                    )
+                })
                 .collect();
             if raas.is_empty() {
                 continue;
@@ -354,7 +456,9 @@ mod tests {
             }
             let last = raas.last().unwrap();
             let last_end = last.at + i64::from(last.days_supply) * SECONDS_PER_DAY;
-            assert!(!Factor::RaasInhibitor.is_active(drugs.mask_at(last_end + 1)) || last_end >= end);
+            assert!(
+                !Factor::RaasInhibitor.is_active(drugs.mask_at(last_end + 1)) || last_end >= end
+            );
             let first = drugs.first_use[Tracked::Raas as usize];
             assert_eq!(first.at, Some(raas[0].at));
             assert!(!Factor::RaasInhibitor.is_active(drugs.mask_at(raas[0].at - 1)));

@@ -13,9 +13,16 @@ use std::path::Path;
 /// How often the progress callback is called (patients).
 const PROGRESS_EVERY: u64 = 1000;
 
-pub fn generate_with_progress(config: &SynthConfig, out_dir: &Path, progress: &dyn Fn(u64)) -> Result<Truth, SynthError> {
+pub fn generate_with_progress(
+    config: &SynthConfig,
+    out_dir: &Path,
+    progress: &dyn Fn(u64),
+) -> Result<Truth, SynthError> {
     let sc = Scenario::new(config)?;
-    std::fs::create_dir_all(out_dir).map_err(|source| SynthError::CreateDir { path: out_dir.to_path_buf(), source })?;
+    std::fs::create_dir_all(out_dir).map_err(|source| SynthError::CreateDir {
+        path: out_dir.to_path_buf(),
+        source,
+    })?;
     let mut writer = ExtractWriter::create(out_dir, &sc)?;
     let mut tally = Tally::new(&sc);
     let mut rows = PatientRows::default();
@@ -30,7 +37,8 @@ pub fn generate_with_progress(config: &SynthConfig, out_dir: &Path, progress: &d
     let files = writer.finish()?;
     let truth = Truth::build(&sc, &tally, files);
     let path = out_dir.join("truth.json");
-    let mut json = serde_json::to_vec_pretty(&truth).map_err(|source| SynthError::Truth { source })?;
+    let mut json =
+        serde_json::to_vec_pretty(&truth).map_err(|source| SynthError::Truth { source })?;
     json.push(b'\n');
     std::fs::write(&path, json).map_err(|source| SynthError::Write { path, source })?;
     progress(config.patients);

@@ -49,7 +49,14 @@ const fn drug(
     dose: &'static str,
     dose_unit: &'static str,
 ) -> Drug {
-    Drug { atc, name, class, route, dose, dose_unit }
+    Drug {
+        atc,
+        name,
+        class,
+        route,
+        dose,
+        dose_unit,
+    }
 }
 
 use DrugClass::*;
@@ -62,17 +69,61 @@ pub const ACE_INHIBITORS: &[Drug] = &[
 ];
 
 pub const ARBS: &[Drug] = &[
-    drug("C09CA01", "losartan", AngiotensinReceptorBlocker, "PO", "50", "mg"),
-    drug("C09CA03", "valsartan", AngiotensinReceptorBlocker, "PO", "80", "mg"),
-    drug("C09CA06", "candesartan", AngiotensinReceptorBlocker, "PO", "8", "mg"),
-    drug("C09CA04", "irbesartan", AngiotensinReceptorBlocker, "PO", "150", "mg"),
-    drug("C09CA07", "telmisartan", AngiotensinReceptorBlocker, "PO", "40", "mg"),
+    drug(
+        "C09CA01",
+        "losartan",
+        AngiotensinReceptorBlocker,
+        "PO",
+        "50",
+        "mg",
+    ),
+    drug(
+        "C09CA03",
+        "valsartan",
+        AngiotensinReceptorBlocker,
+        "PO",
+        "80",
+        "mg",
+    ),
+    drug(
+        "C09CA06",
+        "candesartan",
+        AngiotensinReceptorBlocker,
+        "PO",
+        "8",
+        "mg",
+    ),
+    drug(
+        "C09CA04",
+        "irbesartan",
+        AngiotensinReceptorBlocker,
+        "PO",
+        "150",
+        "mg",
+    ),
+    drug(
+        "C09CA07",
+        "telmisartan",
+        AngiotensinReceptorBlocker,
+        "PO",
+        "40",
+        "mg",
+    ),
 ];
 
-pub const SACUBITRIL_VALSARTAN: Drug = drug("C09DX04", "sacubitril/valsartan", NeprilysinArb, "PO", "97", "mg");
+pub const SACUBITRIL_VALSARTAN: Drug = drug(
+    "C09DX04",
+    "sacubitril/valsartan",
+    NeprilysinArb,
+    "PO",
+    "97",
+    "mg",
+);
 
-pub const MRAS: &[Drug] =
-    &[drug("C03DA01", "spironolactone", Mra, "PO", "25", "mg"), drug("C03DA04", "eplerenone", Mra, "PO", "25", "mg")];
+pub const MRAS: &[Drug] = &[
+    drug("C03DA01", "spironolactone", Mra, "PO", "25", "mg"),
+    drug("C03DA04", "eplerenone", Mra, "PO", "25", "mg"),
+];
 
 pub const AMILORIDE: Drug = drug("C03DB01", "amiloride", PotassiumSparing, "PO", "5", "mg");
 
@@ -84,9 +135,30 @@ pub const BETA_BLOCKERS: &[Drug] = &[
 ];
 
 pub const CALCIUM_CHANNEL_BLOCKERS: &[Drug] = &[
-    drug("C08CA01", "amlodipine", CalciumChannelBlocker, "PO", "5", "mg"),
-    drug("C08CA13", "lercanidipine", CalciumChannelBlocker, "PO", "10", "mg"),
-    drug("C08CA05", "nifedipine", CalciumChannelBlocker, "PO", "30", "mg"),
+    drug(
+        "C08CA01",
+        "amlodipine",
+        CalciumChannelBlocker,
+        "PO",
+        "5",
+        "mg",
+    ),
+    drug(
+        "C08CA13",
+        "lercanidipine",
+        CalciumChannelBlocker,
+        "PO",
+        "10",
+        "mg",
+    ),
+    drug(
+        "C08CA05",
+        "nifedipine",
+        CalciumChannelBlocker,
+        "PO",
+        "30",
+        "mg",
+    ),
 ];
 
 pub const LOOP_DIURETICS: &[Drug] = &[
@@ -94,7 +166,14 @@ pub const LOOP_DIURETICS: &[Drug] = &[
     drug("C03CA04", "torasemide", LoopDiuretic, "PO", "10", "mg"),
 ];
 
-pub const POTASSIUM_CHLORIDE_ORAL: Drug = drug("A12BA01", "potassium chloride", PotassiumOral, "PO", "600", "mg");
+pub const POTASSIUM_CHLORIDE_ORAL: Drug = drug(
+    "A12BA01",
+    "potassium chloride",
+    PotassiumOral,
+    "PO",
+    "600",
+    "mg",
+);
 
 pub const NSAIDS: &[Drug] = &[
     drug("M01AE01", "ibuprofen", Nsaid, "PO", "400", "mg"),
@@ -106,30 +185,89 @@ pub const TRIMETHOPRIM: Drug = drug("J01EA01", "trimethoprim", Trimethoprim, "PO
 pub const CO_TRIMOXAZOLE: Drug = drug("J01EE01", "co-trimoxazole", Trimethoprim, "PO", "960", "mg");
 
 pub const METFORMIN: Drug = drug("A10BA02", "metformin", Metformin, "PO", "1000", "mg");
-pub const INSULIN_GLARGINE: Drug = drug("A10AE04", "insulin glargine", BasalInsulin, "SC", "20", "unit");
-pub const SALBUTAMOL_INHALER: Drug =
-    drug("R03AC02", "salbutamol inhaler", SalbutamolInhaler, "INH", "100", "microgram");
+pub const INSULIN_GLARGINE: Drug = drug(
+    "A10AE04",
+    "insulin glargine",
+    BasalInsulin,
+    "SC",
+    "20",
+    "unit",
+);
+pub const SALBUTAMOL_INHALER: Drug = drug(
+    "R03AC02",
+    "salbutamol inhaler",
+    SalbutamolInhaler,
+    "INH",
+    "100",
+    "microgram",
+);
 
 pub const ENOXAPARIN: Drug = drug("B01AB05", "enoxaparin", Heparin, "SC", "40", "mg");
 pub const HEPARIN: Drug = drug("B01AB01", "heparin", Heparin, "SC", "5000", "unit");
-pub const POTASSIUM_CHLORIDE_IV: Drug =
-    drug("B05XA01", "potassium chloride 0.15% in sodium chloride 0.9%", PotassiumIv, "IV", "20", "mmol");
-pub const CO_TRIMOXAZOLE_IV: Drug = drug("J01EE01", "co-trimoxazole", Trimethoprim, "IV", "960", "mg");
+pub const POTASSIUM_CHLORIDE_IV: Drug = drug(
+    "B05XA01",
+    "potassium chloride 0.15% in sodium chloride 0.9%",
+    PotassiumIv,
+    "IV",
+    "20",
+    "mmol",
+);
+pub const CO_TRIMOXAZOLE_IV: Drug =
+    drug("J01EE01", "co-trimoxazole", Trimethoprim, "IV", "960", "mg");
 
 // Acute treatments (UKKA 2023 regimen as summarised in the domain reference §2.2).
-pub const CALCIUM_GLUCONATE: Drug =
-    drug("A12AA03", "calcium gluconate 10%", CalciumGluconate, "IV", "30", "mL");
+pub const CALCIUM_GLUCONATE: Drug = drug(
+    "A12AA03",
+    "calcium gluconate 10%",
+    CalciumGluconate,
+    "IV",
+    "30",
+    "mL",
+);
 /// Name with a comma, as pharmacy systems often write it; exercises CSV quoting.
-pub const INSULIN_SOLUBLE: Drug = drug("A10AB01", "insulin human, soluble", RegularInsulin, "IV", "10", "unit");
+pub const INSULIN_SOLUBLE: Drug = drug(
+    "A10AB01",
+    "insulin human, soluble",
+    RegularInsulin,
+    "IV",
+    "10",
+    "unit",
+);
 pub const GLUCOSE_IV: Drug = drug("B05BA03", "glucose 50%", GlucoseIv, "IV", "25", "g");
-pub const SALBUTAMOL_NEBULISED: Drug =
-    drug("R03AC02", "salbutamol nebuliser solution", SalbutamolNebulised, "INH", "10", "mg");
-pub const SODIUM_BICARBONATE: Drug =
-    drug("B05XA02", "sodium bicarbonate 8.4%", SodiumBicarbonate, "IV", "100", "mmol");
+pub const SALBUTAMOL_NEBULISED: Drug = drug(
+    "R03AC02",
+    "salbutamol nebuliser solution",
+    SalbutamolNebulised,
+    "INH",
+    "10",
+    "mg",
+);
+pub const SODIUM_BICARBONATE: Drug = drug(
+    "B05XA02",
+    "sodium bicarbonate 8.4%",
+    SodiumBicarbonate,
+    "IV",
+    "100",
+    "mmol",
+);
 pub const BINDERS: &[Drug] = &[
-    drug("V03AE10", "sodium zirconium cyclosilicate", Binder, "PO", "10", "g"),
+    drug(
+        "V03AE10",
+        "sodium zirconium cyclosilicate",
+        Binder,
+        "PO",
+        "10",
+        "g",
+    ),
     drug("V03AE09", "patiromer", Binder, "PO", "8.4", "g"),
-    drug("V03AE01", "calcium polystyrene sulfonate", Binder, "PO", "15", "g"),
+    drug(
+        "V03AE01",
+        "calcium polystyrene sulfonate",
+        Binder,
+        "PO",
+        "15",
+        "g",
+    ),
 ];
 pub const FUROSEMIDE_IV: Drug = drug("C03CA01", "furosemide", LoopIv, "IV", "40", "mg");
 
@@ -137,8 +275,9 @@ pub const FUROSEMIDE_IV: Drug = drug("C03CA01", "furosemide", LoopIv, "IV", "40"
 /// confirmation rule of the domain reference §1.3): calcium, regular insulin, nebulised
 /// salbutamol, IV bicarbonate, binders and IV loop diuretics.
 #[cfg(test)]
-pub const TREATMENT_ATC: &[&str] =
-    &["A12AA03", "A10AB01", "R03AC02", "B05XA02", "V03AE10", "V03AE09", "V03AE01", "C03CA01"];
+pub const TREATMENT_ATC: &[&str] = &[
+    "A12AA03", "A10AB01", "R03AC02", "B05XA02", "V03AE10", "V03AE09", "V03AE01", "C03CA01",
+];
 
 #[cfg(test)]
 mod tests {
@@ -146,7 +285,16 @@ mod tests {
 
     fn all() -> Vec<Drug> {
         let mut v: Vec<Drug> = Vec::new();
-        for list in [ACE_INHIBITORS, ARBS, MRAS, BETA_BLOCKERS, CALCIUM_CHANNEL_BLOCKERS, LOOP_DIURETICS, NSAIDS, BINDERS] {
+        for list in [
+            ACE_INHIBITORS,
+            ARBS,
+            MRAS,
+            BETA_BLOCKERS,
+            CALCIUM_CHANNEL_BLOCKERS,
+            LOOP_DIURETICS,
+            NSAIDS,
+            BINDERS,
+        ] {
             v.extend_from_slice(list);
         }
         v.extend([
@@ -176,8 +324,18 @@ mod tests {
     fn codes_routes_and_doses_are_well_formed() {
         for d in all() {
             assert!(kcohort_model::code::is_valid_atc(d.atc), "{}", d.atc);
-            assert!(kcohort_model::contract::ROUTES.contains(&d.route), "{} {}", d.name, d.route);
-            assert!(d.dose.parse::<f64>().is_ok_and(|x| x > 0.0), "{} {}", d.name, d.dose);
+            assert!(
+                kcohort_model::contract::ROUTES.contains(&d.route),
+                "{} {}",
+                d.name,
+                d.route
+            );
+            assert!(
+                d.dose.parse::<f64>().is_ok_and(|x| x > 0.0),
+                "{} {}",
+                d.name,
+                d.dose
+            );
         }
     }
 
@@ -204,7 +362,12 @@ mod tests {
             let is_treatment_code = TREATMENT_ATC.contains(&d.atc);
             let is_acute = matches!(
                 d.class,
-                CalciumGluconate | RegularInsulin | SalbutamolNebulised | SodiumBicarbonate | Binder | LoopIv
+                CalciumGluconate
+                    | RegularInsulin
+                    | SalbutamolNebulised
+                    | SodiumBicarbonate
+                    | Binder
+                    | LoopIv
             );
             // Oral furosemide and the salbutamol inhaler share a code with an acute treatment;
             // they are dispensed (never administered), which is how readers tell them apart.

@@ -181,13 +181,18 @@ mod tests {
         let m = HazardModel::new(&SynthConfig::default());
         let mut rng = Rng::seeded(9);
         let n = 50_000;
-        let hits = (0..n).filter(|_| m.attribute(Factor::EgfrBelow45.bit(), &mut rng).is_some()).count();
+        let hits = (0..n)
+            .filter(|_| m.attribute(Factor::EgfrBelow45.bit(), &mut rng).is_some())
+            .count();
         let share = hits as f64 / f64::from(n);
         // Binomial SD at n = 50 000: √(0.6·0.4/50 000) ≈ 0.0022; allow 5 SD.
         assert!((share - 0.6).abs() < 0.011, "{share}");
         // A factor with HR 1 is never the label.
         for _ in 0..1000 {
-            assert_eq!(m.attribute(Factor::CalciumChannelBlocker.bit(), &mut rng), None);
+            assert_eq!(
+                m.attribute(Factor::CalciumChannelBlocker.bit(), &mut rng),
+                None
+            );
         }
     }
 

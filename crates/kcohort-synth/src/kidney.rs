@@ -8,7 +8,11 @@
 pub fn egfr_ckd_epi_2021(creatinine_mg_dl: f64, age_years: f64, female: bool) -> f64 {
     let (kappa, alpha, sex_factor) = constants(female);
     let ratio = creatinine_mg_dl / kappa;
-    142.0 * ratio.min(1.0).powf(alpha) * ratio.max(1.0).powf(-1.200) * 0.9938f64.powf(age_years) * sex_factor
+    142.0
+        * ratio.min(1.0).powf(alpha)
+        * ratio.max(1.0).powf(-1.200)
+        * 0.9938f64.powf(age_years)
+        * sex_factor
 }
 
 /// The serum creatinine (mg/dL) at which the CKD-EPI 2021 equation gives `egfr`.
@@ -16,12 +20,20 @@ pub fn creatinine_for_egfr(egfr: f64, age_years: f64, female: bool) -> f64 {
     let (kappa, alpha, sex_factor) = constants(female);
     let at_kappa = 142.0 * 0.9938f64.powf(age_years) * sex_factor;
     let r = egfr / at_kappa;
-    if r >= 1.0 { kappa * r.powf(1.0 / alpha) } else { kappa * r.powf(-1.0 / 1.200) }
+    if r >= 1.0 {
+        kappa * r.powf(1.0 / alpha)
+    } else {
+        kappa * r.powf(-1.0 / 1.200)
+    }
 }
 
 /// (κ, α, sex factor) of the equation.
 fn constants(female: bool) -> (f64, f64, f64) {
-    if female { (0.7, -0.241, 1.012) } else { (0.9, -0.302, 1.0) }
+    if female {
+        (0.7, -0.241, 1.012)
+    } else {
+        (0.9, -0.302, 1.0)
+    }
 }
 
 /// KDIGO 2012 GFR category label (G1 ≥ 90, G2 60–89, G3a 45–59, G3b 30–44, G4 15–29, G5 < 15).
@@ -68,7 +80,10 @@ mod tests {
                 for egfr in [8.0, 20.0, 44.9, 45.1, 75.0, 110.0, 130.0] {
                     let scr = creatinine_for_egfr(egfr, age, female);
                     let back = egfr_ckd_epi_2021(scr, age, female);
-                    assert!((back - egfr).abs() < 1e-9, "{female} {age} {egfr}: {scr} -> {back}");
+                    assert!(
+                        (back - egfr).abs() < 1e-9,
+                        "{female} {age} {egfr}: {scr} -> {back}"
+                    );
                 }
             }
         }

@@ -41,7 +41,7 @@ pub mod truth;
 
 pub use config::{HazardRatios, SynthConfig};
 pub use error::SynthError;
-pub use network::{NETWORK_NAME, UNITS};
+pub use network::NETWORK_NAME;
 pub use truth::Truth;
 
 use std::path::Path;
@@ -54,6 +54,10 @@ pub fn generate(config: &SynthConfig, out_dir: &Path) -> Result<Truth, SynthErro
 
 /// Like [`generate`], calling `progress` with the number of patients done every 1,000 patients
 /// and once at the end.
-pub fn generate_with_progress(config: &SynthConfig, out_dir: &Path, progress: &dyn Fn(u64)) -> Result<Truth, SynthError> {
+pub fn generate_with_progress(
+    config: &SynthConfig,
+    out_dir: &Path,
+    progress: &dyn Fn(u64),
+) -> Result<Truth, SynthError> {
     extract::generate_with_progress(config, out_dir, progress)
 }

@@ -84,22 +84,82 @@ pub const SITES: [Site; 3] = [
 
 /// The units encounters are attributed to. Index into this array = unit id.
 pub const UNITS: [Unit; 15] = [
-    Unit { name: "Larkmoor General Emergency Department", site: 0, kind: UnitKind::Emergency },
-    Unit { name: "Larkmoor General Acute Medical Unit", site: 0, kind: UnitKind::Medicine },
-    Unit { name: "Larkmoor General Ward 5 Cardiology", site: 0, kind: UnitKind::Cardiology },
-    Unit { name: "Larkmoor General Ward 7 Renal", site: 0, kind: UnitKind::Renal },
-    Unit { name: "Larkmoor General Ward 9 Surgery", site: 0, kind: UnitKind::Surgery },
-    Unit { name: "Larkmoor General Critical Care", site: 0, kind: UnitKind::CriticalCare },
-    Unit { name: "Larkmoor General Kidney and Heart Clinic", site: 0, kind: UnitKind::Clinic },
-    Unit { name: "Fenwick Community Urgent Care", site: 1, kind: UnitKind::Emergency },
-    Unit { name: "Fenwick Community Elm Ward (older people)", site: 1, kind: UnitKind::Elderly },
+    Unit {
+        name: "Larkmoor General Emergency Department",
+        site: 0,
+        kind: UnitKind::Emergency,
+    },
+    Unit {
+        name: "Larkmoor General Acute Medical Unit",
+        site: 0,
+        kind: UnitKind::Medicine,
+    },
+    Unit {
+        name: "Larkmoor General Ward 5 Cardiology",
+        site: 0,
+        kind: UnitKind::Cardiology,
+    },
+    Unit {
+        name: "Larkmoor General Ward 7 Renal",
+        site: 0,
+        kind: UnitKind::Renal,
+    },
+    Unit {
+        name: "Larkmoor General Ward 9 Surgery",
+        site: 0,
+        kind: UnitKind::Surgery,
+    },
+    Unit {
+        name: "Larkmoor General Critical Care",
+        site: 0,
+        kind: UnitKind::CriticalCare,
+    },
+    Unit {
+        name: "Larkmoor General Kidney and Heart Clinic",
+        site: 0,
+        kind: UnitKind::Clinic,
+    },
+    Unit {
+        name: "Fenwick Community Urgent Care",
+        site: 1,
+        kind: UnitKind::Emergency,
+    },
+    Unit {
+        name: "Fenwick Community Elm Ward (older people)",
+        site: 1,
+        kind: UnitKind::Elderly,
+    },
     // A name with a comma, so the CSV writer's quoting is exercised by real rows.
-    Unit { name: "Fenwick Community Birch Ward, general medicine", site: 1, kind: UnitKind::Medicine },
-    Unit { name: "Fenwick Community Outpatients", site: 1, kind: UnitKind::Clinic },
-    Unit { name: "Ashby Vale Emergency Department", site: 2, kind: UnitKind::Emergency },
-    Unit { name: "Ashby Vale Heron Ward (medicine)", site: 2, kind: UnitKind::Medicine },
-    Unit { name: "Ashby Vale Kestrel Ward (surgery)", site: 2, kind: UnitKind::Surgery },
-    Unit { name: "Ashby Vale Outpatients", site: 2, kind: UnitKind::Clinic },
+    Unit {
+        name: "Fenwick Community Birch Ward, general medicine",
+        site: 1,
+        kind: UnitKind::Medicine,
+    },
+    Unit {
+        name: "Fenwick Community Outpatients",
+        site: 1,
+        kind: UnitKind::Clinic,
+    },
+    Unit {
+        name: "Ashby Vale Emergency Department",
+        site: 2,
+        kind: UnitKind::Emergency,
+    },
+    Unit {
+        name: "Ashby Vale Heron Ward (medicine)",
+        site: 2,
+        kind: UnitKind::Medicine,
+    },
+    Unit {
+        name: "Ashby Vale Kestrel Ward (surgery)",
+        site: 2,
+        kind: UnitKind::Surgery,
+    },
+    Unit {
+        name: "Ashby Vale Outpatients",
+        site: 2,
+        kind: UnitKind::Clinic,
+    },
 ];
 
 /// The unit whose hospital-acquired rate steps up by default.
@@ -111,7 +171,11 @@ pub fn unit_id(name: &str) -> Option<usize> {
 
 /// The units of `site` of one kind, in table order.
 pub fn units_of(site: usize, kind: UnitKind) -> impl Iterator<Item = usize> {
-    UNITS.iter().enumerate().filter(move |(_, u)| u.site == site && u.kind == kind).map(|(i, _)| i)
+    UNITS
+        .iter()
+        .enumerate()
+        .filter(move |(_, u)| u.site == site && u.kind == kind)
+        .map(|(i, _)| i)
 }
 
 /// The first unit of `site` of `kind`, falling back to the site's medical ward (Fenwick has no
@@ -152,8 +216,17 @@ mod tests {
     fn reported_units_are_accepted_by_the_contract() {
         use kcohort_model::Analyte;
         for site in SITES {
-            for a in [Analyte::Potassium, Analyte::Sodium, Analyte::Chloride, Analyte::Bicarbonate] {
-                assert!(a.conversion_for(site.electrolyte_unit).is_some(), "{a:?} {}", site.electrolyte_unit);
+            for a in [
+                Analyte::Potassium,
+                Analyte::Sodium,
+                Analyte::Chloride,
+                Analyte::Bicarbonate,
+            ] {
+                assert!(
+                    a.conversion_for(site.electrolyte_unit).is_some(),
+                    "{a:?} {}",
+                    site.electrolyte_unit
+                );
             }
         }
     }

@@ -26,8 +26,14 @@ impl Sex {
 }
 
 /// Age bands of truth.json (years at the period start).
-pub const AGE_BANDS: [(&str, f64, f64); 6] =
-    [("18-29", 18.0, 30.0), ("30-44", 30.0, 45.0), ("45-59", 45.0, 60.0), ("60-74", 60.0, 75.0), ("75-89", 75.0, 90.0), ("90+", 90.0, 103.0)];
+pub const AGE_BANDS: [(&str, f64, f64); 6] = [
+    ("18-29", 18.0, 30.0),
+    ("30-44", 30.0, 45.0),
+    ("45-59", 45.0, 60.0),
+    ("60-74", 60.0, 75.0),
+    ("75-89", 75.0, 90.0),
+    ("90+", 90.0, 103.0),
+];
 
 /// Weights of the age bands: a hospital population is older than the general one; adults only
 /// (the network's extract covers adult services, 18 and over at the period start).
@@ -114,7 +120,8 @@ impl Profile {
             ckd *= 1.5;
         }
         let egfr = if rng.bernoulli(ckd.min(0.8)) {
-            let (lo, hi) = [(45.0, 60.0), (30.0, 45.0), (15.0, 30.0), (8.0, 15.0)][rng.categorical(&[0.50, 0.28, 0.15, 0.07])];
+            let (lo, hi) = [(45.0, 60.0), (30.0, 45.0), (15.0, 30.0), (8.0, 15.0)]
+                [rng.categorical(&[0.50, 0.28, 0.15, 0.07])];
             rng.range(lo, hi)
         } else {
             let typical = 118.0 - 0.8 * (age - 30.0).max(0.0);
@@ -125,11 +132,15 @@ impl Profile {
         // Patient-level offset of usual potassium: SD 0.25; with the draw-to-draw SD of 0.312 in
         // the specimen model the population SD of a single result is √(0.25² + 0.312²) = 0.40.
         let potassium_offset = rng.normal(0.0, 0.25);
-        let home_site = rng.categorical(&[SITES[0].patient_share, SITES[1].patient_share, SITES[2].patient_share]);
+        let home_site = rng.categorical(&[
+            SITES[0].patient_share,
+            SITES[1].patient_share,
+            SITES[2].patient_share,
+        ]);
 
         // Care use: a frailty multiplier (lognormal, median 1, σ 0.6) times condition factors.
         let frailty = rng.lognormal(1.0, 0.6);
-        let mut admissions = 0.10 * frailty;
+        let mut admissions = 0.13 * frailty;
         if age >= 75.0 {
             admissions *= 1.4;
         }
@@ -156,7 +167,7 @@ impl Profile {
         if heart_failure {
             deaths *= 1.5;
         }
-        let stay_death_probability = if age >= 75.0 { 0.035 } else { 0.012 };
+        let stay_death_probability = if age >= 75.0 { 0.05 } else { 0.015 };
 
         Profile {
             sex,

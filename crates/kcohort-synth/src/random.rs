@@ -216,10 +216,16 @@ mod tests {
             let m = xs.iter().sum::<f64>() / xs.len() as f64;
             let v = xs.iter().map(|x| (x - m).powi(2)).sum::<f64>() / (xs.len() - 1) as f64;
             let se = (var / xs.len() as f64).sqrt();
-            assert!((m - mean).abs() < 5.0 * se, "{name}: mean {m}, expected {mean}");
+            assert!(
+                (m - mean).abs() < 5.0 * se,
+                "{name}: mean {m}, expected {mean}"
+            );
             // Variance of the sample variance is about 2σ⁴/n for near-normal data; use a loose
             // 10% band instead, which every distribution below meets comfortably at this n.
-            assert!((v / var - 1.0).abs() < 0.1, "{name}: variance {v}, expected {var}");
+            assert!(
+                (v / var - 1.0).abs() < 0.1,
+                "{name}: variance {v}, expected {var}"
+            );
         };
         let u: Vec<f64> = (0..n).map(|_| r.uniform()).collect();
         check("uniform", &u, 0.5, 1.0 / 12.0);
@@ -234,8 +240,15 @@ mod tests {
         // Lognormal(median m, σ): mean m·e^{σ²/2}, variance (e^{σ²} − 1)·m²·e^{σ²}.
         let (m, s): (f64, f64) = (4.0, 0.5);
         let l: Vec<f64> = (0..n).map(|_| r.lognormal(m, s)).collect();
-        check("lognormal", &l, m * (s * s / 2.0).exp(), ((s * s).exp() - 1.0) * m * m * (s * s).exp());
-        let b: Vec<f64> = (0..n).map(|_| f64::from(u8::from(r.bernoulli(0.03)))).collect();
+        check(
+            "lognormal",
+            &l,
+            m * (s * s / 2.0).exp(),
+            ((s * s).exp() - 1.0) * m * m * (s * s).exp(),
+        );
+        let b: Vec<f64> = (0..n)
+            .map(|_| f64::from(u8::from(r.bernoulli(0.03))))
+            .collect();
         check("bernoulli", &b, 0.03, 0.03 * 0.97);
     }
 
@@ -247,9 +260,18 @@ mod tests {
             counts[r.categorical(&[1.0, 2.0, 7.0])] += 1;
         }
         // Expected 10 000 / 20 000 / 70 000; binomial SDs ≈ 95 / 126 / 145; allow 5 SD.
-        assert!((f64::from(counts[0]) - 10_000.0).abs() < 475.0, "{counts:?}");
-        assert!((f64::from(counts[1]) - 20_000.0).abs() < 630.0, "{counts:?}");
-        assert!((f64::from(counts[2]) - 70_000.0).abs() < 725.0, "{counts:?}");
+        assert!(
+            (f64::from(counts[0]) - 10_000.0).abs() < 475.0,
+            "{counts:?}"
+        );
+        assert!(
+            (f64::from(counts[1]) - 20_000.0).abs() < 630.0,
+            "{counts:?}"
+        );
+        assert!(
+            (f64::from(counts[2]) - 70_000.0).abs() < 725.0,
+            "{counts:?}"
+        );
     }
 
     #[test]

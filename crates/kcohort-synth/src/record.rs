@@ -80,11 +80,18 @@ pub struct Reported {
 impl Reported {
     pub fn new(value: f64, decimals: u8) -> Reported {
         let scale = 10f64.powi(i32::from(decimals));
-        Reported { scaled: (value * scale).round() as i64, decimals, comparator: None }
+        Reported {
+            scaled: (value * scale).round() as i64,
+            decimals,
+            comparator: None,
+        }
     }
 
     pub fn with_comparator(value: f64, decimals: u8, comparator: &'static str) -> Reported {
-        Reported { comparator: Some(comparator), ..Reported::new(value, decimals) }
+        Reported {
+            comparator: Some(comparator),
+            ..Reported::new(value, decimals)
+        }
     }
 
     /// The numeric value as a reader parses it (the comparator dropped).

@@ -6,8 +6,8 @@ use crate::error::SynthError;
 use crate::hazard::HazardModel;
 use crate::network;
 use crate::site_time::{
-    SECONDS_PER_DAY, SECONDS_PER_HOUR, SiteTime, days_from_civil, month_from_number, month_label, month_number,
-    parse_year_month,
+    SECONDS_PER_DAY, SECONDS_PER_HOUR, SiteTime, days_from_civil, month_from_number, month_label,
+    month_number, parse_year_month,
 };
 
 /// No onset is planted in the last 12 hours before the extract end, so that the confirmation of
@@ -98,7 +98,9 @@ impl Scenario {
 
     /// Index of the calendar month holding `t` (clamped to the period).
     pub fn month_index(&self, t: i64) -> usize {
-        self.month_starts.partition_point(|s| *s <= t).saturating_sub(1)
+        self.month_starts
+            .partition_point(|s| *s <= t)
+            .saturating_sub(1)
     }
 }
 
@@ -122,8 +124,14 @@ mod tests {
 
     #[test]
     fn step_month_outside_the_period_is_refused() {
-        let config = SynthConfig { step_month: "2027-01".into(), ..SynthConfig::default() };
+        let config = SynthConfig {
+            step_month: "2027-01".into(),
+            ..SynthConfig::default()
+        };
         let err = Scenario::new(&config).unwrap_err().to_string();
-        assert!(err.contains("step_month") && err.contains("2024-01"), "{err}");
+        assert!(
+            err.contains("step_month") && err.contains("2024-01"),
+            "{err}"
+        );
     }
 }

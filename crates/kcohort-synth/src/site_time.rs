@@ -45,7 +45,9 @@ impl SiteTime {
             found: zone_name.to_string(),
         })?;
         let offset_at = |utc: i64| -> i32 {
-            let dt = chrono::DateTime::from_timestamp(utc, 0).expect("in range").naive_utc();
+            let dt = chrono::DateTime::from_timestamp(utc, 0)
+                .expect("in range")
+                .naive_utc();
             zone.offset_from_utc_datetime(&dt).fix().local_minus_utc()
         };
         let start = from_utc - 40 * SECONDS_PER_DAY;
@@ -89,7 +91,7 @@ impl SiteTime {
     /// The earliest instant whose local time is `local` (so an ambiguous time maps to its first
     /// occurrence, as readers of zoneless extracts do); a time in a spring-forward gap maps to
     /// the instant the clocks jumped past it.
-    pub fn from_local(&self, local: i64) -> i64 {
+    pub fn instant_of_local(&self, local: i64) -> i64 {
         let mut best: Option<i64> = None;
         for &o in &self.offsets {
             let utc = local - i64::from(o);
@@ -97,21 +99,23 @@ impl SiteTime {
                 best = Some(best.map_or(utc, |b: i64| b.min(utc)));
             }
         }
-        best.unwrap_or_else(|| local - i64::from(self.offset_at(local - i64::from(self.offsets[0]))))
+        best.unwrap_or_else(|| {
+            local - i64::from(self.offset_at(local - i64::from(self.offsets[0])))
+        })
     }
 
     /// The instant of local midnight starting the given date.
     pub fn midnight(&self, year: i32, month: u32, day: u32) -> i64 {
-        self.from_local(days_from_civil(year, month, day) * SECONDS_PER_DAY)
+        self.instant_of_local(days_from_civil(year, month, day) * SECONDS_PER_DAY)
     }
 
     /// The first instant strictly after `after` whose local time of day is `seconds_of_day`.
     pub fn next_time_of_day(&self, after: i64, seconds_of_day: i64) -> i64 {
         let local = self.local(after);
         let day = local.div_euclid(SECONDS_PER_DAY);
-        let mut candidate = self.from_local(day * SECONDS_PER_DAY + seconds_of_day);
+        let mut candidate = self.instant_of_local(day * SECONDS_PER_DAY + seconds_of_day);
         if candidate <= after {
-            candidate = self.from_local((day + 1) * SECONDS_PER_DAY + seconds_of_day);
+            candidate = self.instant_of_local((day + 1) * SECONDS_PER_DAY + seconds_of_day);
         }
         candidate
     }
@@ -309,10 +313,10 @@ mod tests {
         assert_eq!(st.offset_at(autumn), 3600);
         // 02:30 local on 27 October happens twice; the earlier instant is 00:30 UTC.
         let local = days_from_civil(2024, 10, 27) * SECONDS_PER_DAY + 2 * 3600 + 1800;
-        assert_eq!(st.from_local(local), autumn - 1800);
+        assert_eq!(st.instant_of_local(local), autumn - 1800);
         // 02:30 local on 31 March does not exist.
         let gap = days_from_civil(2024, 3, 31) * SECONDS_PER_DAY + 2 * 3600 + 1800;
-        let mapped = st.from_local(gap);
+        let mapped = st.instant_of_local(gap);
         assert!(st.local(mapped) != gap);
     }
 

@@ -12,7 +12,7 @@ use crate::network::{CreatinineReporting, SITES};
 use crate::profile::Profile;
 use crate::random::Rng;
 use crate::record::{LabRec, Reported, Test};
-use crate::site_time::{SECONDS_PER_DAY, SECONDS_PER_HOUR};
+use crate::site_time::{SECONDS_PER_DAY, SECONDS_PER_HOUR, SiteTime, TimeForm};
 
 pub const K: u8 = 1;
 pub const SODIUM: u8 = 2;
@@ -58,7 +58,10 @@ impl Role {
     fn is_structural(self) -> bool {
         match self {
             Role::Routine | Role::GlucoseCheck | Role::Planned(DrawRole::Recheck) => false,
-            Role::Planned(_) | Role::SpuriousHigh | Role::SpuriousRepeat | Role::HemolysedRepeat => true,
+            Role::Planned(_)
+            | Role::SpuriousHigh
+            | Role::SpuriousRepeat
+            | Role::HemolysedRepeat => true,
         }
     }
 }
@@ -79,11 +82,21 @@ pub struct Draw {
     // Assigned by `assign_values`.
     pub potassium: f64,
     pub hemolysis_index: Option<u16>,
+    /// Whether the specimen could have been hemolysed (it has an index and carries no planted fact).
+    pub hemolysis_eligible: bool,
     pub low_comparator: bool,
 }
 
 impl Draw {
-    pub fn new(at: i64, encounter: u32, encounter_end: i64, site: usize, setting: Setting, role: Role, panel: u8) -> Draw {
+    pub fn new(
+        at: i64,
+        encounter: u32,
+        encounter_end: i64,
+        site: usize,
+        setting: Setting,
+        role: Role,
+        panel: u8,
+    ) -> Draw {
         Draw {
             at,
             encounter,
@@ -97,6 +110,7 @@ impl Draw {
             planned_glucose: None,
             potassium: 0.0,
             hemolysis_index: None,
+            hemolysis_eligible: false,
             low_comparator: false,
         }
     }
@@ -212,12 +226,15 @@ pub fn assign_values(
         let site = &SITES[d.site];
         if rng.bernoulli(site.hemolysis_index_share) {
             let eligible = !d.role.is_structural() && !d.low_comparator;
+            d.hemolysis_eligible = eligible;
             if eligible && rng.bernoulli(hemolysed_share) {
                 let index = (100.0 + rng.exponential(1.0 / 150.0)).min(1500.0) as u16;
                 let raise = (0.25 + 0.25 * f64::from(index) / 100.0).min(2.5);
                 let mut v = d.potassium + raise;
                 if quiet && window.is_none() {
-                    v = v.min(5.4);
+                    // Near an episode a hemolysed result stays below 5.5 (capped at a random
+                    // 5.0–5.4, so the cap leaves no tell-tale single value).
+                    v = v.min(rng.range(5.0, 5.44));
                 }
                 d.potassium = v;
                 d.hemolysis_index = Some(index);
@@ -259,7 +276,15 @@ pub fn assign_values(
 }
 
 fn repeat_draw(rng: &mut Rng, of: &Draw, at: i64, role: Role) -> Draw {
-    let mut r = Draw::new(at, of.encounter, of.encounter_end, of.site, of.setting, role, K);
+    let mut r = Draw::new(
+        at,
+        of.encounter,
+        of.encounter_end,
+        of.site,
+        of.setting,
+        role,
+        K,
+    );
     r.potassium = (rng.range(3.8, 4.94) * 10.0).round() / 10.0;
     r.planned_potassium = Some(r.potassium);
     if rng.bernoulli(SITES[of.site].hemolysis_index_share) {
@@ -269,14 +294,18 @@ fn repeat_draw(rng: &mut Rng, of: &Draw, at: i64, role: Role) -> Draw {
 }
 
 /// A high value outside episodes must stay a single unconfirmed high: a second high within 6 h
-/// would confirm it, so a later one is capped at 5.4 (only hemolysed results can be affected).
+/// would confirm it, so a later one within 7.5 h (6 h plus a margin for the clock change and
+/// minute rounding) is capped at 5.4 (only hemolysed results can be affected).
 fn isolate_single_highs(draws: &mut [Draw], episodes: &[EpisodeWindow]) {
     let mut last_high: Option<i64> = None;
     for d in draws.iter_mut() {
-        if !d.has_potassium() || d.reported_potassium() < 5.5 || episodes.iter().any(|e| e.contains(d.at)) {
+        if !d.has_potassium()
+            || d.reported_potassium() < 5.5
+            || episodes.iter().any(|e| e.contains(d.at))
+        {
             continue;
         }
-        if last_high.is_some_and(|t| d.at - t <= 6 * SECONDS_PER_HOUR) {
+        if last_high.is_some_and(|t| d.at - t <= 7 * SECONDS_PER_HOUR + 1800) {
             d.potassium = 5.4;
             if d.role == Role::SpuriousHigh {
                 d.role = Role::Routine;
@@ -308,8 +337,22 @@ fn trajectory(rng: &mut Rng, e: &EpisodeWindow, t: i64, profile: &Profile) -> f6
 }
 
 /// Counts for truth.json from the final, sorted draws; the same plain reading a test applies
-/// to the files (refuted = a serum/plasma result < 5.0 within 6 h after the high one).
-pub fn count(draws: &[Draw], episodes: &[EpisodeWindow], counts: &mut SpecimenCounts) {
+/// to the files (refuted = a serum/plasma result < 5.0 within 6 h after the high one, with
+/// times as read back from the local-time files).
+pub fn count(
+    time: &SiteTime,
+    draws: &[Draw],
+    episodes: &[EpisodeWindow],
+    counts: &mut SpecimenCounts,
+) {
+    let read = |d: &Draw| {
+        let form = if SITES[d.site].collection_seconds {
+            TimeForm::Seconds
+        } else {
+            TimeForm::Minutes
+        };
+        time.instant_of_local(time.written_local(d.at, form))
+    };
     for (i, d) in draws.iter().enumerate() {
         if !d.has_potassium() {
             continue;
@@ -320,7 +363,7 @@ pub fn count(draws: &[Draw], episodes: &[EpisodeWindow], counts: &mut SpecimenCo
         counts.below_lower_limit += u64::from(d.low_comparator);
         if let Some(h) = d.hemolysis_index {
             counts.with_index += 1;
-            let eligible = !d.role.is_structural() && !d.low_comparator;
+            let eligible = d.hemolysis_eligible;
             counts.eligible_with_index += u64::from(eligible);
             let hemolysed = h >= HEMOLYSED_INDEX;
             counts.hemolysed += u64::from(hemolysed);
@@ -329,10 +372,15 @@ pub fn count(draws: &[Draw], episodes: &[EpisodeWindow], counts: &mut SpecimenCo
         let in_episode = episodes.iter().any(|e| e.contains(d.at));
         let v = d.reported_potassium();
         if !in_episode && v >= 5.5 {
+            let at = read(d);
             let refuted = draws[i + 1..]
                 .iter()
-                .take_while(|r| r.at - d.at <= 6 * SECONDS_PER_HOUR)
-                .any(|r| r.has_potassium() && r.reported_potassium() < 5.0);
+                .take_while(|r| r.at - d.at <= 8 * SECONDS_PER_HOUR)
+                .any(|r| {
+                    r.has_potassium()
+                        && read(r) - at <= 6 * SECONDS_PER_HOUR
+                        && r.reported_potassium() < 5.0
+                });
             if d.is_hemolysed() {
                 counts.hemolysed_high += 1;
                 counts.hemolysed_high_refuted += u64::from(refuted);
@@ -383,26 +431,45 @@ pub fn lab_rows(
         };
         let aki_factor = aki.iter().map(|w| w.factor(d.at)).fold(1.0, f64::max);
         if d.has_potassium() {
-            let mut r = row(Test::Potassium, potassium_value(d.potassium, d.low_comparator), 0);
+            let mut r = row(
+                Test::Potassium,
+                potassium_value(d.potassium, d.low_comparator),
+                0,
+            );
             r.hemolysis_index = d.hemolysis_index;
             rows.push(r);
         }
         if d.panel & SODIUM != 0 {
-            rows.push(row(Test::Sodium, Reported::new(rng.normal(139.0, 2.8), 0), 0));
+            rows.push(row(
+                Test::Sodium,
+                Reported::new(rng.normal(139.0, 2.8), 0),
+                0,
+            ));
         }
         if d.panel & CHLORIDE != 0 {
-            rows.push(row(Test::Chloride, Reported::new(rng.normal(103.0, 3.0), 0), 0));
+            rows.push(row(
+                Test::Chloride,
+                Reported::new(rng.normal(103.0, 3.0), 0),
+                0,
+            ));
         }
         if d.panel & BICARBONATE != 0 {
             let mean = if profile.egfr < 30.0 { 22.0 } else { 25.0 };
-            rows.push(row(Test::Bicarbonate, Reported::new(rng.normal(mean, 2.5).clamp(12.0, 38.0), 0), 0));
+            rows.push(row(
+                Test::Bicarbonate,
+                Reported::new(rng.normal(mean, 2.5).clamp(12.0, 38.0), 0),
+                0,
+            ));
         }
         if d.panel & CREATININE != 0 {
             // Analytic and biological variation CV ≈ 5% (from memory).
-            let mg = (profile.creatinine * (0.05 * rng.standard_normal()).exp() * aki_factor).clamp(0.1, 20.0);
+            let mg = (profile.creatinine * (0.05 * rng.standard_normal()).exp() * aki_factor)
+                .clamp(0.1, 20.0);
             let (value, spelling) = match site.creatinine {
                 CreatinineReporting::MassPerVolume => (Reported::new(mg, 2), 0),
-                CreatinineReporting::MolesPerVolume => (Reported::new(mg * 88.4, 0), u8::from(rng.bernoulli(0.2))),
+                CreatinineReporting::MolesPerVolume => {
+                    (Reported::new(mg * 88.4, 0), u8::from(rng.bernoulli(0.2)))
+                }
             };
             rows.push(row(Test::Creatinine, value, spelling));
         }
@@ -414,7 +481,10 @@ pub fn lab_rows(
         if d.panel & GLUCOSE != 0 {
             let value = match d.planned_glucose {
                 Some(g) => Reported::new(g, 0),
-                None if profile.diabetes && d.setting != Setting::Outpatient && rng.bernoulli(0.002) => {
+                None if profile.diabetes
+                    && d.setting != Setting::Outpatient
+                    && rng.bernoulli(0.002) =>
+                {
                     counts.glucose_above_600 += 1;
                     Reported::with_comparator(600.0, 0, ">")
                 }
@@ -423,14 +493,22 @@ pub fn lab_rows(
             rows.push(row(Test::Glucose, value, 0));
         }
         if d.panel & CK != 0 {
-            let ck = if rng.bernoulli(0.01) { rng.range(2000.0, 40_000.0) } else { rng.lognormal(110.0, 0.6).clamp(20.0, 5000.0) };
+            let ck = if rng.bernoulli(0.01) {
+                rng.range(2000.0, 40_000.0)
+            } else {
+                rng.lognormal(110.0, 0.6).clamp(20.0, 5000.0)
+            };
             rows.push(row(Test::CreatineKinase, Reported::new(ck, 0), 0));
         }
         if d.blood_gas && d.has_potassium() {
             // Whole-blood potassium on the blood gas analyser reads 0.1–0.3 lower (domain
             // reference §1.2); resulted within minutes; no hemolysis index.
             let v = (d.potassium - rng.range(0.1, 0.3)).max(1.5);
-            let mut r = row(Test::PotassiumBloodGas, potassium_value(v, d.low_comparator), 0);
+            let mut r = row(
+                Test::PotassiumBloodGas,
+                potassium_value(v, d.low_comparator),
+                0,
+            );
             let gas_result = d.at + rng.int_between(300, 900);
             r.resulted_at = (gas_result < extract_end).then_some(gas_result);
             rows.push(r);
@@ -468,7 +546,11 @@ mod tests {
 
     #[test]
     fn aki_factor_shape() {
-        let w = AkiWindow { start: 0, end: 1000, peak_factor: 2.0 };
+        let w = AkiWindow {
+            start: 0,
+            end: 1000,
+            peak_factor: 2.0,
+        };
         assert_eq!(w.factor(-1), 1.0);
         assert!((w.factor(400) - 2.0).abs() < 1e-12);
         assert!((w.factor(700) - 1.5).abs() < 1e-12);
@@ -477,8 +559,14 @@ mod tests {
 
     #[test]
     fn potassium_comparators() {
-        assert_eq!(potassium_value(9.4, false), Reported::with_comparator(9.0, 1, ">"));
+        assert_eq!(
+            potassium_value(9.4, false),
+            Reported::with_comparator(9.0, 1, ">")
+        );
         assert_eq!(potassium_value(9.0, false), Reported::new(9.0, 1));
-        assert_eq!(potassium_value(3.0, true), Reported::with_comparator(1.5, 1, "<"));
+        assert_eq!(
+            potassium_value(3.0, true),
+            Reported::with_comparator(1.5, 1, "<")
+        );
     }
 }

@@ -30,18 +30,35 @@ struct TableFile {
 impl TableFile {
     fn create(dir: &Path, table: TableName) -> Result<TableFile, SynthError> {
         let path = dir.join(format!("{}.csv", table.as_str()));
-        let file = File::create(&path).map_err(|source| SynthError::Write { path: path.clone(), source })?;
+        let file = File::create(&path).map_err(|source| SynthError::Write {
+            path: path.clone(),
+            source,
+        })?;
         let mut out = BufWriter::with_capacity(BUFFER_BYTES, file);
         let header: Vec<&str> = table.columns().iter().map(|c| c.name).collect();
         let mut line = header.join(",").into_bytes();
         line.push(b'\n');
-        out.write_all(&line).map_err(|source| SynthError::Write { path: path.clone(), source })?;
-        Ok(TableFile { table, path, out, rows: 0, clean_rows: 0 })
+        out.write_all(&line).map_err(|source| SynthError::Write {
+            path: path.clone(),
+            source,
+        })?;
+        Ok(TableFile {
+            table,
+            path,
+            out,
+            rows: 0,
+            clean_rows: 0,
+        })
     }
 
     fn write(&mut self, line: &[u8]) -> Result<(), SynthError> {
         self.rows += 1;
-        self.out.write_all(line).map_err(|source| SynthError::Write { path: self.path.clone(), source })
+        self.out
+            .write_all(line)
+            .map_err(|source| SynthError::Write {
+                path: self.path.clone(),
+                source,
+            })
     }
 }
 
@@ -67,13 +84,18 @@ pub struct ExtractWriter<'a> {
 
 impl std::fmt::Debug for ExtractWriter<'_> {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.debug_struct("ExtractWriter").field("next_encounter", &self.next_encounter).finish_non_exhaustive()
+        f.debug_struct("ExtractWriter")
+            .field("next_encounter", &self.next_encounter)
+            .finish_non_exhaustive()
     }
 }
 
 impl<'a> ExtractWriter<'a> {
     pub fn create(dir: &Path, sc: &'a Scenario) -> Result<ExtractWriter<'a>, SynthError> {
-        let files = TableName::ALL.iter().map(|t| TableFile::create(dir, *t)).collect::<Result<Vec<_>, _>>()?;
+        let files = TableName::ALL
+            .iter()
+            .map(|t| TableFile::create(dir, *t))
+            .collect::<Result<Vec<_>, _>>()?;
         let patients = sc.config.patients;
         Ok(ExtractWriter {
             sc,
@@ -97,11 +119,23 @@ impl<'a> ExtractWriter<'a> {
     pub fn finish(self) -> Result<BTreeMap<String, FileTruth>, SynthError> {
         let mut result = BTreeMap::new();
         for mut f in self.files {
-            f.out.flush().map_err(|source| SynthError::Write { path: f.path.clone(), source })?;
-            let file = f.path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+            f.out.flush().map_err(|source| SynthError::Write {
+                path: f.path.clone(),
+                source,
+            })?;
+            let file = f
+                .path
+                .file_name()
+                .map(|n| n.to_string_lossy().into_owned())
+                .unwrap_or_default();
             result.insert(
                 f.table.as_str().to_string(),
-                FileTruth { file, rows: f.rows, clean_rows: f.clean_rows, planted_defects: self.defects.counts_of(f.table) },
+                FileTruth {
+                    file,
+                    rows: f.rows,
+                    clean_rows: f.clean_rows,
+                    planted_defects: self.defects.counts_of(f.table),
+                },
             );
         }
         Ok(result)
@@ -142,7 +176,8 @@ impl<'a> ExtractWriter<'a> {
         // Encounter ids in admission order.
         self.order.clear();
         self.order.extend(0..rows.encounters.len());
-        self.order.sort_by_key(|i| (rows.encounters[*i].admitted_at, *i));
+        self.order
+            .sort_by_key(|i| (rows.encounters[*i].admitted_at, *i));
         self.enc_ids.clear();
         self.enc_ids.resize(rows.encounters.len(), 0);
         for k in 0..self.order.len() {
@@ -160,7 +195,13 @@ impl<'a> ExtractWriter<'a> {
         for diag in &rows.diags {
             self.line.clear();
             let pid_bytes = std::mem::take(&mut self.patient_id);
-            self.diag_line(&pid_bytes, diag.encounter, diag.code, diag.recorded_at, None);
+            self.diag_line(
+                &pid_bytes,
+                diag.encounter,
+                diag.code,
+                diag.recorded_at,
+                None,
+            );
             self.patient_id = pid_bytes;
             self.emit_clean(TableName::Diagnoses)?;
             for k in 0..self.planned.len() {
@@ -175,7 +216,13 @@ impl<'a> ExtractWriter<'a> {
                     _ => {
                         let form = self.bad_form();
                         let pid_bytes = std::mem::take(&mut self.patient_id);
-                        self.diag_line(&pid_bytes, diag.encounter, diag.code, diag.recorded_at, Some(form));
+                        self.diag_line(
+                            &pid_bytes,
+                            diag.encounter,
+                            diag.code,
+                            diag.recorded_at,
+                            Some(form),
+                        );
                         self.patient_id = pid_bytes;
                     }
                 }
@@ -186,7 +233,11 @@ impl<'a> ExtractWriter<'a> {
     }
 
     fn bad_form(&mut self) -> BadTimeForm {
-        if self.defects.rng.bernoulli(0.5) { BadTimeForm::DaySlashMonth } else { BadTimeForm::DayDotMonth }
+        if self.defects.rng.bernoulli(0.5) {
+            BadTimeForm::DaySlashMonth
+        } else {
+            BadTimeForm::DayDotMonth
+        }
     }
 
     fn encounter_ref(&mut self, index: u32) {
@@ -230,7 +281,12 @@ impl<'a> ExtractWriter<'a> {
                     self.line.extend_from_slice(b",M,");
                     push_u64(&mut self.line, profile.birth_year as u64);
                     self.line.push(b',');
-                    let at = self.sc.period_start + self.defects.rng.below((self.sc.months_end - self.sc.period_start) as u64) as i64;
+                    let at = self.sc.period_start
+                        + self
+                            .defects
+                            .rng
+                            .below((self.sc.months_end - self.sc.period_start) as u64)
+                            as i64;
                     let form = self.bad_form();
                     self.sc.time.write_bad(&mut self.line, at, form);
                     self.line.push(b'\n');
@@ -255,14 +311,22 @@ impl<'a> ExtractWriter<'a> {
         push_text(line, UNITS[e.unit].name);
         line.push(b',');
         match variant {
-            Some(Defect::BadTimestamp) => time.write_bad(line, e.admitted_at, BadTimeForm::DaySlashMonth),
+            Some(Defect::BadTimestamp) => {
+                time.write_bad(line, e.admitted_at, BadTimeForm::DaySlashMonth)
+            }
             _ => time.write(line, e.admitted_at, TimeForm::Minutes),
         }
         line.push(b',');
         match variant {
             Some(Defect::EndBeforeStart) => {
                 let hours = 1 + e.admitted_at.rem_euclid(47);
-                let end = before(time, e.admitted_at, TimeForm::Minutes, e.admitted_at - hours * 3600, TimeForm::Minutes);
+                let end = before(
+                    time,
+                    e.admitted_at,
+                    TimeForm::Minutes,
+                    e.admitted_at - hours * 3600,
+                    TimeForm::Minutes,
+                );
                 time.write(line, end, TimeForm::Minutes);
             }
             _ => {
@@ -318,7 +382,11 @@ impl<'a> ExtractWriter<'a> {
 
     fn lab_line(&mut self, id: u64, pid: &[u8], lab: &LabRec, variant: Option<Defect>) {
         let site = &SITES[lab.site];
-        let collected_form = if site.collection_seconds { TimeForm::Seconds } else { TimeForm::Minutes };
+        let collected_form = if site.collection_seconds {
+            TimeForm::Seconds
+        } else {
+            TimeForm::Minutes
+        };
         push_id(&mut self.line, b'L', id, 9);
         self.line.push(b',');
         self.line.extend_from_slice(pid);
@@ -329,8 +397,13 @@ impl<'a> ExtractWriter<'a> {
         self.line.push(b',');
         let (loinc, unit) = match variant {
             Some(Defect::ImpossibleValue) => ("2823-3", site.electrolyte_unit),
-            Some(Defect::UnknownUnit) => ("2823-3", *self.defects.rng.pick(&["mg/dL", "mg/L", "g/L"])),
-            _ => (loinc_of(lab.test, lab.site), unit_of(lab.test, lab.site, lab.unit_spelling)),
+            Some(Defect::UnknownUnit) => {
+                ("2823-3", *self.defects.rng.pick(&["mg/dL", "mg/L", "g/L"]))
+            }
+            _ => (
+                loinc_of(lab.test, lab.site),
+                unit_of(lab.test, lab.site, lab.unit_spelling),
+            ),
         };
         self.line.extend_from_slice(loinc.as_bytes());
         self.line.push(b',');
@@ -356,7 +429,11 @@ impl<'a> ExtractWriter<'a> {
         let time = &self.sc.time;
         match variant {
             Some(Defect::BadTimestamp) => {
-                let form = if lab.collected_at % 2 == 0 { BadTimeForm::DaySlashMonth } else { BadTimeForm::DayDotMonth };
+                let form = if lab.collected_at % 2 == 0 {
+                    BadTimeForm::DaySlashMonth
+                } else {
+                    BadTimeForm::DayDotMonth
+                };
                 time.write_bad(&mut self.line, lab.collected_at, form);
             }
             _ => time.write(&mut self.line, lab.collected_at, collected_form),
@@ -365,7 +442,13 @@ impl<'a> ExtractWriter<'a> {
         match variant {
             Some(Defect::EndBeforeStart) => {
                 let minutes = 5 + lab.collected_at.rem_euclid(115);
-                let end = before(time, lab.collected_at, collected_form, lab.collected_at - minutes * 60, TimeForm::Seconds);
+                let end = before(
+                    time,
+                    lab.collected_at,
+                    collected_form,
+                    lab.collected_at - minutes * 60,
+                    TimeForm::Seconds,
+                );
                 time.write(&mut self.line, end, TimeForm::Seconds);
             }
             _ => {
@@ -420,7 +503,11 @@ impl<'a> ExtractWriter<'a> {
     // ---- medication events --------------------------------------------------------------
 
     fn med_line(&mut self, id: u64, pid: &[u8], m: &MedRec, variant: Option<Defect>) {
-        let form = if m.kind == MedKind::Administer { TimeForm::Seconds } else { TimeForm::Minutes };
+        let form = if m.kind == MedKind::Administer {
+            TimeForm::Seconds
+        } else {
+            TimeForm::Minutes
+        };
         push_id(&mut self.line, b'M', id, 9);
         self.line.push(b',');
         self.line.extend_from_slice(pid);
@@ -439,7 +526,9 @@ impl<'a> ExtractWriter<'a> {
         self.line.push(b',');
         let time = &self.sc.time;
         match variant {
-            Some(Defect::BadTimestamp) => time.write_bad(&mut self.line, m.start_at, BadTimeForm::DaySlashMonth),
+            Some(Defect::BadTimestamp) => {
+                time.write_bad(&mut self.line, m.start_at, BadTimeForm::DaySlashMonth)
+            }
             _ => time.write(&mut self.line, m.start_at, form),
         }
         self.line.push(b',');
@@ -515,7 +604,14 @@ impl<'a> ExtractWriter<'a> {
 
     // ---- diagnoses ----------------------------------------------------------------------
 
-    fn diag_line(&mut self, pid: &[u8], encounter: u32, code: &str, at: i64, bad: Option<BadTimeForm>) {
+    fn diag_line(
+        &mut self,
+        pid: &[u8],
+        encounter: u32,
+        code: &str,
+        at: i64,
+        bad: Option<BadTimeForm>,
+    ) {
         self.line.extend_from_slice(pid);
         self.line.push(b',');
         self.encounter_ref(encounter);
@@ -531,7 +627,10 @@ impl<'a> ExtractWriter<'a> {
 }
 
 fn table_index(table: TableName) -> usize {
-    TableName::ALL.iter().position(|t| *t == table).expect("listed")
+    TableName::ALL
+        .iter()
+        .position(|t| *t == table)
+        .expect("listed")
 }
 
 /// `end`, moved an hour later if, as written, it would not read after `start` (possible only
@@ -581,7 +680,11 @@ fn loinc_of(test: Test, site: usize) -> &'static str {
 fn unit_of(test: Test, site: usize, spelling: u8) -> &'static str {
     let s = &SITES[site];
     match test {
-        Test::Potassium | Test::PotassiumBloodGas | Test::Sodium | Test::Chloride | Test::Bicarbonate => s.electrolyte_unit,
+        Test::Potassium
+        | Test::PotassiumBloodGas
+        | Test::Sodium
+        | Test::Chloride
+        | Test::Bicarbonate => s.electrolyte_unit,
         Test::Creatinine => match (s.creatinine, spelling) {
             (CreatinineReporting::MassPerVolume, _) => "mg/dL",
             (CreatinineReporting::MolesPerVolume, 0) => "µmol/L",
@@ -600,7 +703,10 @@ fn unit_of(test: Test, site: usize, spelling: u8) -> &'static str {
 
 /// RFC 4180: a field with a comma, quote or line break is quoted, its quotes doubled.
 pub fn push_text(out: &mut Vec<u8>, text: &str) {
-    if text.bytes().any(|b| matches!(b, b',' | b'"' | b'\n' | b'\r')) {
+    if text
+        .bytes()
+        .any(|b| matches!(b, b',' | b'"' | b'\n' | b'\r'))
+    {
         out.push(b'"');
         for b in text.bytes() {
             if b == b'"' {
@@ -683,7 +789,10 @@ mod tests {
     fn rfc4180_quoting() {
         let cases = [
             ("plain", "plain"),
-            ("Birch Ward, general medicine", "\"Birch Ward, general medicine\""),
+            (
+                "Birch Ward, general medicine",
+                "\"Birch Ward, general medicine\"",
+            ),
             ("say \"hi\"", "\"say \"\"hi\"\"\""),
             ("two\nlines", "\"two\nlines\""),
             ("µmol/L", "µmol/L"),
@@ -730,7 +839,8 @@ mod tests {
             for test in tests {
                 for spelling in 0..2 {
                     let loinc = loinc_of(test, site);
-                    let analyte = Analyte::from_loinc(loinc).unwrap_or_else(|| panic!("{loinc} unlisted"));
+                    let analyte =
+                        Analyte::from_loinc(loinc).unwrap_or_else(|| panic!("{loinc} unlisted"));
                     let unit = unit_of(test, site, spelling);
                     assert!(analyte.conversion_for(unit).is_some(), "{loinc} {unit}");
                 }

@@ -2,8 +2,9 @@
 //! transfers), the planted hazard of true high-potassium episodes over the time at risk, the
 //! episodes themselves, deaths, and every draw, drug and diagnosis that results.
 //!
-//! Time at risk: outside hospital (community) and in hospital from 48 h after admission
-//! (hospital-acquired), never in the emergency department or the first 48 h of a stay, never in
+//! Time at risk: outside hospital (community) and in hospital from 49 h after admission
+//! (hospital-acquired; one hour beyond the 48 h of the reading, so that no onset sits on its
+//! edge), never in the emergency department or the first 49 h of a stay, never in
 //! a stay that began with a present-on-admission episode, and never from an onset until 7.5 days
 //! after the episode ended (so a new episode always follows the previous one by more than the
 //! 7-day gap of the domain reference §1.4). A community onset brings the patient to the emergency
@@ -16,16 +17,30 @@ use crate::hazard::Factor;
 use crate::network::{SITES, UNITS, UnitKind, unit_for, units_of};
 use crate::profile::Profile;
 use crate::random::Rng;
-use crate::record::{DiagRec, DischargeStatus, EncounterClass, EncounterRec, LabRec, MedKind, MedRec, NO_ENCOUNTER};
+use crate::record::{
+    DiagRec, DischargeStatus, EncounterClass, EncounterRec, LabRec, MedKind, MedRec, NO_ENCOUNTER,
+};
 use crate::scenario::Scenario;
-use crate::specimen::{self, AkiWindow, BASIC, CK, Draw, EXTENDED, EpisodeWindow, GLUCOSE, K, Role, Setting, SpecimenCounts};
+use crate::site_time::TimeForm;
+use crate::specimen::{
+    self, AkiWindow, BASIC, CK, Draw, EXTENDED, EpisodeWindow, GLUCOSE, K, Role, Setting,
+    SpecimenCounts,
+};
 use crate::truth::{Tally, TimeSetting};
 
 const MINUTE: i64 = 60;
 const HOUR: i64 = 3600;
 const DAY: i64 = 86_400;
+/// Hours after admission from which a stay is at risk of a hospital-acquired onset.
+pub const HOSPITAL_AT_RISK_FROM_HOURS: i64 = 49;
 /// After an episode ends, the patient is not at risk for this long.
 const AT_RISK_GAP: i64 = 7 * DAY + 12 * HOUR;
+
+/// Encounter boundaries are whole minutes, as the encounters table writes them, so that a row
+/// inside an encounter in seconds is also inside it as written.
+fn ceil_minute(t: i64) -> i64 {
+    t + (60 - t.rem_euclid(60)) % 60
+}
 
 /// What truth.json needs about a planted episode after the patient is finished.
 #[derive(Debug, Clone, Copy)]
@@ -121,13 +136,20 @@ enum StayKind {
     Hyperkalemia,
 }
 
-/// Simulates patient `index` into `rows` and adds its facts to `tally`.
+/// Simulates one patient (with its own random stream) into `rows` and adds its facts to `tally`.
 pub fn simulate(sc: &Scenario, rng: Rng, rows: &mut PatientRows, tally: &mut Tally) {
     rows.clear();
     let mut rng = rng;
     let profile = Profile::draw(&mut rng, sc.first_year);
-    rows.drugs.plan(&profile, &mut rng, &sc.time, sc.period_start, sc.extract_end);
-    let death_bg = sc.period_start + (rng.exponential(profile.deaths_per_year) * 365.25 * DAY as f64) as i64;
+    rows.drugs.plan(
+        &profile,
+        &mut rng,
+        &sc.time,
+        sc.period_start,
+        sc.extract_end,
+    );
+    let death_bg =
+        sc.period_start + (rng.exponential(profile.deaths_per_year) * 365.25 * DAY as f64) as i64;
     let mut sim = Sim {
         sc,
         static_mask: profile.static_mask(),
@@ -166,7 +188,8 @@ impl Sim<'_> {
     }
 
     fn next_death(&self) -> i64 {
-        self.exact_death.map_or(self.death_bg, |d| d.min(self.death_bg))
+        self.exact_death
+            .map_or(self.death_bg, |d| d.min(self.death_bg))
     }
 
     fn died(&self) -> bool {
@@ -178,15 +201,29 @@ impl Sim<'_> {
         let per_second = |per_year: f64| per_year / (365.25 * DAY as f64);
         let mut t = sc.period_start;
         while t < sc.extract_end && !self.died() {
-            let adm = t + self.rng.exponential(per_second(self.p.unplanned_admissions_per_year)) as i64;
-            let ele = t + self.rng.exponential(per_second(self.p.elective_admissions_per_year)) as i64;
-            let ed = t + self.rng.exponential(per_second(self.p.emergency_visits_per_year)) as i64;
-            let opd = t + self.rng.exponential(per_second(self.p.outpatient_visits_per_year)) as i64;
+            let adm = t + self
+                .rng
+                .exponential(per_second(self.p.unplanned_admissions_per_year))
+                as i64;
+            let ele = t + self
+                .rng
+                .exponential(per_second(self.p.elective_admissions_per_year))
+                as i64;
+            let ed = t + self
+                .rng
+                .exponential(per_second(self.p.emergency_visits_per_year))
+                as i64;
+            let opd = t + self
+                .rng
+                .exponential(per_second(self.p.outpatient_visits_per_year))
+                as i64;
             let contact = adm.min(ele).min(ed).min(opd);
             // A death that fell inside the last contact happens right after it.
             let death = self.next_death().max(t);
             let horizon = contact.min(death).min(sc.extract_end);
-            if let Some((tau, mask)) = self.community_onset(t.max(self.restart_at), horizon.min(sc.risk_end)) {
+            if let Some((tau, mask)) =
+                self.community_onset(t.max(self.restart_at), horizon.min(sc.risk_end))
+            {
                 t = self.community_episode(tau, mask);
                 continue;
             }
@@ -232,14 +269,20 @@ impl Sim<'_> {
             let mask = self.static_mask | self.rows.drugs.mask_at(s);
             let rate = self.sc.hazard.community_per_day * self.sc.hazard.ratio(mask);
             let span = (e - s) as f64 / DAY as f64;
-            let wait = if rate > 0.0 { self.rng.exponential(rate) } else { f64::INFINITY };
+            let wait = if rate > 0.0 {
+                self.rng.exponential(rate)
+            } else {
+                f64::INFINITY
+            };
             if wait < span {
-                self.tally.at_risk(TimeSetting::Community, mask, wait, None, 0);
+                self.tally
+                    .at_risk(TimeSetting::Community, mask, wait, rate, None, 0);
                 let tau = s + (wait * DAY as f64) as i64;
                 result = Some((tau, mask));
                 break;
             }
-            self.tally.at_risk(TimeSetting::Community, mask, span, None, 0);
+            self.tally
+                .at_risk(TimeSetting::Community, mask, span, rate, None, 0);
             s = e;
         }
         self.rows.breaks = breaks;
@@ -262,7 +305,13 @@ impl Sim<'_> {
         if let Some(w) = &self.stay.aki {
             breaks.extend([w.start, w.end].into_iter().filter(|t| inside(*t)));
         }
-        breaks.extend(self.stay.segments.iter().map(|s| s.0).filter(|t| inside(*t)));
+        breaks.extend(
+            self.stay
+                .segments
+                .iter()
+                .map(|s| s.0)
+                .filter(|t| inside(*t)),
+        );
         breaks.extend(sc.month_starts.iter().copied().filter(|t| inside(*t)));
         if inside(sc.step_at) {
             breaks.push(sc.step_at);
@@ -279,18 +328,41 @@ impl Sim<'_> {
             let mask = self.static_mask | self.rows.drugs.mask_at(s) | self.stay.mask_at(s);
             let (unit, _) = self.stay.segment_at(s);
             let in_step = unit == sc.step_unit;
-            let step = if in_step && s >= sc.step_at { sc.step_factor } else { 1.0 };
-            let rate = sc.hazard.inpatient_per_day * sc.hazard.ratio(mask) * step;
+            let step = if in_step && s >= sc.step_at {
+                sc.step_factor
+            } else {
+                1.0
+            };
+            let unstepped = sc.hazard.inpatient_per_day * sc.hazard.ratio(mask);
+            let rate = unstepped * step;
             let span = (e - s) as f64 / DAY as f64;
-            let wait = if rate > 0.0 { self.rng.exponential(rate) } else { f64::INFINITY };
+            let wait = if rate > 0.0 {
+                self.rng.exponential(rate)
+            } else {
+                f64::INFINITY
+            };
             let month = sc.month_index(s);
             let step_side = in_step.then_some(s >= sc.step_at);
             if wait < span {
-                self.tally.at_risk(TimeSetting::Hospital, mask, wait, step_side, month);
+                self.tally.at_risk(
+                    TimeSetting::Hospital,
+                    mask,
+                    wait,
+                    unstepped,
+                    step_side,
+                    month,
+                );
                 result = Some((s + (wait * DAY as f64) as i64, unit, mask));
                 break;
             }
-            self.tally.at_risk(TimeSetting::Hospital, mask, span, step_side, month);
+            self.tally.at_risk(
+                TimeSetting::Hospital,
+                mask,
+                span,
+                unstepped,
+                step_side,
+                month,
+            );
             s = e;
         }
         self.rows.breaks = breaks;
@@ -300,43 +372,61 @@ impl Sim<'_> {
     // ---- contacts -----------------------------------------------------------------------
 
     fn visit_site(&mut self) -> usize {
-        if self.rng.bernoulli(0.9) { self.p.home_site } else { self.rng.below(SITES.len() as u64) as usize }
+        if self.rng.bernoulli(0.9) {
+            self.p.home_site
+        } else {
+            self.rng.below(SITES.len() as u64) as usize
+        }
     }
 
     /// An arrival on the local date of `t` at an hour drawn from a daytime-weighted profile
     /// (emergency arrivals peak late morning to evening, common practice), not before `t`.
     fn arrival_time(&mut self, t: i64) -> i64 {
         const HOURLY: [f64; 24] = [
-            2.0, 1.5, 1.2, 1.0, 1.0, 1.2, 2.0, 3.0, 4.5, 5.5, 6.0, 6.0, 5.8, 5.6, 5.5, 5.4, 5.3, 5.2, 5.0, 4.6, 4.0,
-            3.4, 2.8, 2.4,
+            2.0, 1.5, 1.2, 1.0, 1.0, 1.2, 2.0, 3.0, 4.5, 5.5, 6.0, 6.0, 5.8, 5.6, 5.5, 5.4, 5.3,
+            5.2, 5.0, 4.6, 4.0, 3.4, 2.8, 2.4,
         ];
         let hour = self.rng.categorical(&HOURLY) as i64;
-        let seconds = hour * HOUR + self.rng.int_between(0, HOUR - 1);
+        let seconds = hour * HOUR + self.rng.int_between(0, 59) * MINUTE;
         self.sc.time.next_time_of_day(t, seconds)
     }
 
-    fn push_encounter(&mut self, class: EncounterClass, unit: usize, from: i64, to: i64, status: DischargeStatus) -> u32 {
+    fn push_encounter(
+        &mut self,
+        class: EncounterClass,
+        unit: usize,
+        from: i64,
+        to: i64,
+        status: DischargeStatus,
+    ) -> u32 {
+        debug_assert!(
+            from % 60 == 0 && to % 60 == 0,
+            "encounter boundaries are whole minutes"
+        );
         let open = to >= self.sc.extract_end;
         self.rows.encounters.push(EncounterRec {
             class,
             unit,
             admitted_at: from,
             discharged_at: (!open).then_some(to),
-            status: if open || class == EncounterClass::Outpatient { None } else { Some(status) },
+            status: if open || class == EncounterClass::Outpatient {
+                None
+            } else {
+                Some(status)
+            },
         });
         (self.rows.encounters.len() - 1) as u32
     }
 
-    fn draw(&mut self, at: i64, encounter: u32, encounter_end: i64, site: usize, setting: Setting, role: Role, panel: u8) {
-        self.rows.draws.push(Draw::new(at, encounter, encounter_end, site, setting, role, panel));
-    }
-
     fn routine_panel(&mut self, setting: Setting) -> u8 {
+        // Potassium, sodium and creatinine always; chloride, bicarbonate and urea nitrogen,
+        // glucose and CK on part of the requests (common practice; tuned so that an extract has
+        // about 18 laboratory rows and 5 potassium results per patient).
         let mut panel = BASIC;
         let (extended, glucose, ck) = match setting {
-            Setting::Inpatient => (0.45, if self.p.diabetes { 0.8 } else { 0.3 }, 0.03),
-            Setting::Emergency => (0.7, 0.8, 0.1),
-            Setting::Outpatient => (0.2, if self.p.diabetes { 0.7 } else { 0.15 }, 0.01),
+            Setting::Inpatient => (0.15, if self.p.diabetes { 0.6 } else { 0.15 }, 0.03),
+            Setting::Emergency => (0.4, 0.6, 0.1),
+            Setting::Outpatient => (0.1, if self.p.diabetes { 0.6 } else { 0.1 }, 0.01),
         };
         if self.rng.bernoulli(extended) {
             panel |= EXTENDED;
@@ -352,13 +442,22 @@ impl Sim<'_> {
 
     fn outpatient_visit(&mut self, t: i64) -> i64 {
         let site = self.visit_site();
-        let start = self.sc.time.next_time_of_day(t, self.rng.int_between(8 * HOUR, 16 * HOUR));
+        let start = self
+            .sc
+            .time
+            .next_time_of_day(t, self.rng.int_between(8 * 60, 16 * 60) * MINUTE);
         if start >= self.sc.extract_end || start + 2 * HOUR >= self.next_death() {
             return start.max(t + 1);
         }
         let end = start + self.rng.int_between(15, 60) * MINUTE;
         let unit = unit_for(site, UnitKind::Clinic);
-        let enc = self.push_encounter(EncounterClass::Outpatient, unit, start, end, DischargeStatus::Home);
+        let enc = self.push_encounter(
+            EncounterClass::Outpatient,
+            unit,
+            start,
+            end,
+            DischargeStatus::Home,
+        );
         // Potassium monitoring: more often with CKD, diabetes or RAAS/MRA exposure.
         let mask = self.rows.drugs.mask_at(start);
         let monitored = self.p.egfr < 60.0
@@ -368,7 +467,15 @@ impl Sim<'_> {
         if self.rng.bernoulli(if monitored { 0.75 } else { 0.4 }) {
             let at = start + self.rng.int_between(5, (end - start) / MINUTE - 3) * MINUTE;
             let panel = self.routine_panel(Setting::Outpatient);
-            self.draw(at, enc, end, site, Setting::Outpatient, Role::Routine, panel);
+            self.rows.draws.push(Draw::new(
+                at,
+                enc,
+                end,
+                site,
+                Setting::Outpatient,
+                Role::Routine,
+                panel,
+            ));
         }
         self.chronic_diagnoses(enc, start + 10 * MINUTE, 0.15);
         end
@@ -380,14 +487,20 @@ impl Sim<'_> {
         if arrival >= self.sc.extract_end || arrival + 2 * HOUR >= self.next_death() {
             return arrival.max(t + 1);
         }
-        let end = arrival + (self.rng.lognormal(4.0, 0.5).clamp(1.5, 14.0) * HOUR as f64) as i64;
-        let status = if self.rng.bernoulli(0.96) { DischargeStatus::Home } else { DischargeStatus::Other };
+        let end = ceil_minute(
+            arrival + (self.rng.lognormal(4.0, 0.5).clamp(1.5, 14.0) * HOUR as f64) as i64,
+        );
+        let status = if self.rng.bernoulli(0.96) {
+            DischargeStatus::Home
+        } else {
+            DischargeStatus::Other
+        };
         let unit = unit_for(site, UnitKind::Emergency);
         let enc = self.push_encounter(EncounterClass::Emergency, unit, arrival, end, status);
         if self.rng.bernoulli(0.75) {
             self.emergency_draw(arrival, enc, end, site);
         }
-        if self.death_bg <= end {
+        if self.next_death() <= end {
             self.die_in_care(enc, end);
         }
         end
@@ -400,7 +513,15 @@ impl Sim<'_> {
             return;
         }
         let panel = self.routine_panel(Setting::Emergency);
-        self.draw(at, enc, end, site, Setting::Emergency, Role::Routine, panel);
+        self.rows.draws.push(Draw::new(
+            at,
+            enc,
+            end,
+            site,
+            Setting::Emergency,
+            Role::Routine,
+            panel,
+        ));
         self.rows.draws.last_mut().expect("pushed").blood_gas = self.rng.bernoulli(0.2);
     }
 
@@ -422,9 +543,15 @@ impl Sim<'_> {
         let mut ed_draw = false;
         if self.rng.bernoulli(0.7) {
             let arrival = admit;
-            admit = arrival + self.hours(2.0, 8.0);
+            admit = ceil_minute(arrival + self.hours(2.0, 8.0));
             let unit = unit_for(site, UnitKind::Emergency);
-            let enc = self.push_encounter(EncounterClass::Emergency, unit, arrival, admit, DischargeStatus::Transfer);
+            let enc = self.push_encounter(
+                EncounterClass::Emergency,
+                unit,
+                arrival,
+                admit,
+                DischargeStatus::Transfer,
+            );
             if self.rng.bernoulli(0.9) {
                 self.emergency_draw(arrival, enc, admit, site);
                 ed_draw = true;
@@ -434,7 +561,13 @@ impl Sim<'_> {
             }
         }
         let kind = self.unplanned_unit_kind();
-        self.stay(admit, unit_for(site, kind), StayKind::Unplanned, None, !ed_draw)
+        self.stay(
+            admit,
+            unit_for(site, kind),
+            StayKind::Unplanned,
+            None,
+            !ed_draw,
+        )
     }
 
     fn unplanned_unit_kind(&mut self) -> UnitKind {
@@ -449,48 +582,93 @@ impl Sim<'_> {
         } else if p.age >= 80.0 && u < 0.5 {
             UnitKind::Elderly
         } else {
-            *self.rng.pick(&[UnitKind::Medicine, UnitKind::Medicine, UnitKind::Medicine, UnitKind::Surgery, UnitKind::Cardiology])
+            // General medicine 40%, cardiology 40% (chest pain, arrhythmia), surgery 20%;
+            // sites without a cardiology ward admit to medicine.
+            *self.rng.pick(&[
+                UnitKind::Medicine,
+                UnitKind::Medicine,
+                UnitKind::Cardiology,
+                UnitKind::Cardiology,
+                UnitKind::Surgery,
+            ])
         }
     }
 
     fn elective_admission(&mut self, t: i64) -> i64 {
         let site = self.visit_site();
-        let admit = self.sc.time.next_time_of_day(t, self.rng.int_between(7 * HOUR, 10 * HOUR));
+        let admit = self
+            .sc
+            .time
+            .next_time_of_day(t, self.rng.int_between(7 * 60, 10 * 60) * MINUTE);
         if admit >= self.sc.extract_end || admit + 2 * HOUR >= self.next_death() {
             return admit.max(t + 1);
         }
-        self.stay(admit, unit_for(site, UnitKind::Surgery), StayKind::Elective, None, true)
+        self.stay(
+            admit,
+            unit_for(site, UnitKind::Surgery),
+            StayKind::Elective,
+            None,
+            true,
+        )
     }
 
     fn fallback_visit(&mut self) {
         // Every patient of the extract had at least one contact: if the simulation gave none,
         // one outpatient visit at a random time while alive.
-        let until = self.rows.death_at.unwrap_or(self.sc.extract_end).min(self.sc.extract_end);
+        let until = self
+            .rows
+            .death_at
+            .unwrap_or(self.sc.extract_end)
+            .min(self.sc.extract_end);
         let span = (until - self.sc.period_start - DAY).max(HOUR);
         let t = self.sc.period_start + self.rng.int_between(0, span);
-        let end = self.outpatient_visit(t);
+        self.outpatient_visit(t);
         if self.rows.encounters.is_empty() {
             // The visit could not fit before death: place it at the period start.
             let unit = unit_for(self.p.home_site, UnitKind::Clinic);
-            let start = self.sc.time.next_time_of_day(self.sc.period_start, 9 * HOUR);
-            self.push_encounter(EncounterClass::Outpatient, unit, start, start + 20 * MINUTE, DischargeStatus::Home);
+            let start = self
+                .sc
+                .time
+                .next_time_of_day(self.sc.period_start, 9 * HOUR);
+            self.push_encounter(
+                EncounterClass::Outpatient,
+                unit,
+                start,
+                start + 20 * MINUTE,
+                DischargeStatus::Home,
+            );
             if let Some(d) = self.rows.death_at {
                 self.rows.death_at = Some(d.max(start + DAY));
             }
         }
-        let _ = end;
     }
 
     // ---- episodes -----------------------------------------------------------------------
 
     /// Bookkeeping of a planted onset: truth counts and the window other draws respect.
-    fn record_episode(&mut self, plan: &EpisodePlan, setting: TimeSetting, mask: u32, unit: Option<usize>) {
+    fn record_episode(
+        &mut self,
+        plan: &EpisodePlan,
+        setting: TimeSetting,
+        mask: u32,
+        unit: Option<usize>,
+    ) {
         let month = self.sc.month_index(plan.onset_at);
-        let step_side = unit.filter(|u| *u == self.sc.step_unit).map(|_| plan.onset_at >= self.sc.step_at);
+        let step_side = unit
+            .filter(|u| *u == self.sc.step_unit)
+            .map(|_| plan.onset_at >= self.sc.step_at);
         let label = self.sc.hazard.attribute(mask, &mut self.rng);
-        self.tally.episode(plan, setting, mask, label, step_side, month);
-        self.rows.episodes.push(EpisodeFacts { onset_at: plan.onset_at, severity: plan.severity() });
-        let rebound = plan.draws.iter().find(|d| d.role == DrawRole::Rebound).map(|d| (d.at, d.potassium));
+        self.tally
+            .episode(plan, setting, mask, label, step_side, month);
+        self.rows.episodes.push(EpisodeFacts {
+            onset_at: plan.onset_at,
+            severity: plan.severity(),
+        });
+        let rebound = plan
+            .draws
+            .iter()
+            .find(|d| d.role == DrawRole::Rebound)
+            .map(|d| (d.at, d.potassium));
         self.rows.windows.push(EpisodeWindow {
             onset_at: plan.onset_at,
             peak: plan.peak,
@@ -506,31 +684,55 @@ impl Sim<'_> {
 
     fn community_episode(&mut self, tau: i64, mask: u32) -> i64 {
         let site = self.visit_site();
-        let arrival = tau;
+        let arrival = tau - tau.rem_euclid(60);
         let onset = arrival + self.rng.int_between(10, 40) * MINUTE;
         let peak = episode::draw_peak(&mut self.rng);
         let severity = Severity::of(peak);
         let admitted = severity != Severity::Mild || self.rng.bernoulli(0.15);
         let follow_up = if !admitted && self.rng.bernoulli(0.75) {
             let day = onset + self.rng.int_between(1, 3) * DAY;
-            Some(self.sc.time.next_time_of_day(day - 12 * HOUR, self.rng.int_between(8 * HOUR, 15 * HOUR)))
+            Some(
+                self.sc
+                    .time
+                    .next_time_of_day(day - 12 * HOUR, self.rng.int_between(8 * HOUR, 15 * HOUR)),
+            )
+            .filter(|at| *at < self.sc.extract_end - HOUR)
         } else {
             None
         };
         let mut plan = EpisodePlan::default();
-        episode::plan(&mut self.rng, &self.sc.config, onset, peak, !admitted, follow_up, &mut plan);
+        episode::plan(
+            &mut self.rng,
+            &self.sc.config,
+            onset,
+            peak,
+            !admitted,
+            follow_up,
+            &mut plan,
+        );
         let early = plan.early_care_until();
-        let ed_end = if admitted {
+        let ed_end = ceil_minute(if admitted {
             (early + self.hours(0.5, 1.5)).max(arrival + self.hours(2.5, 5.0))
         } else {
             early + self.hours(0.5, 2.0)
-        };
+        });
         let ed_unit = unit_for(site, UnitKind::Emergency);
-        let status = if admitted { DischargeStatus::Transfer } else { DischargeStatus::Home };
+        let status = if admitted {
+            DischargeStatus::Transfer
+        } else {
+            DischargeStatus::Home
+        };
         let ed = self.push_encounter(EncounterClass::Emergency, ed_unit, arrival, ed_end, status);
         self.record_episode(&plan, TimeSetting::Community, mask, None);
         // Emergency part: planned draws, doses and glucose checks before the department end.
-        self.place_plan(&plan, i64::MIN, ed_end, |_| (ed, ed_end), site, Setting::Emergency);
+        self.place_plan(
+            &plan,
+            i64::MIN,
+            ed_end,
+            |_| (ed, ed_end),
+            site,
+            Setting::Emergency,
+        );
         if !admitted {
             if self.rng.bernoulli(0.4) {
                 let binder = self.rng.pick(formulary::BINDERS);
@@ -544,18 +746,41 @@ impl Sim<'_> {
                 });
             }
             if self.rng.bernoulli(0.5) {
-                self.rows.diags.push(DiagRec { encounter: ed, code: "E87.5", recorded_at: ed_end });
+                self.rows.diags.push(DiagRec {
+                    encounter: ed,
+                    code: "E87.5",
+                    recorded_at: ed_end,
+                });
             }
             let Some(at) = follow_up else { return ed_end };
-            let start = at - self.rng.int_between(5, 20) * MINUTE;
-            let end = at + self.rng.int_between(10, 40) * MINUTE;
+            let start = at - at.rem_euclid(60) - self.rng.int_between(5, 20) * MINUTE;
+            let end = ceil_minute(at + self.rng.int_between(10, 40) * MINUTE);
             let unit = unit_for(site, UnitKind::Clinic);
-            let enc = self.push_encounter(EncounterClass::Outpatient, unit, start, end, DischargeStatus::Home);
-            self.place_plan(&plan, ed_end, end + 1, |_| (enc, end), site, Setting::Outpatient);
+            let enc = self.push_encounter(
+                EncounterClass::Outpatient,
+                unit,
+                start,
+                end,
+                DischargeStatus::Home,
+            );
+            // Only the follow-up draw itself: a glucose check due while the patient was at home
+            // was not done.
+            self.place_plan(
+                &plan,
+                start,
+                end + 1,
+                |_| (enc, end),
+                site,
+                Setting::Outpatient,
+            );
             return end;
         }
         if self.rng.bernoulli(0.5) {
-            self.rows.diags.push(DiagRec { encounter: ed, code: "E87.5", recorded_at: ed_end });
+            self.rows.diags.push(DiagRec {
+                encounter: ed,
+                code: "E87.5",
+                recorded_at: ed_end,
+            });
         }
         if ed_end >= self.sc.extract_end {
             return ed_end;
@@ -567,7 +792,13 @@ impl Sim<'_> {
         } else {
             UnitKind::Medicine
         };
-        self.stay(ed_end, unit_for(site, kind), StayKind::Hyperkalemia, Some(plan), false)
+        self.stay(
+            ed_end,
+            unit_for(site, kind),
+            StayKind::Hyperkalemia,
+            Some(plan),
+            false,
+        )
     }
 
     /// Adds the plan's draws, doses and glucose checks in [from, to) to the patient, in the
@@ -591,9 +822,20 @@ impl Sim<'_> {
                 DrawRole::Normalising => BASIC,
                 _ => K,
             };
-            let mut draw = Draw::new(d.at, enc, enc_end, site, setting, Role::Planned(d.role), panel);
+            let mut draw = Draw::new(
+                d.at,
+                enc,
+                enc_end,
+                site,
+                setting,
+                Role::Planned(d.role),
+                panel,
+            );
             draw.planned_potassium = Some(d.potassium);
-            if d.role == DrawRole::Onset && setting == Setting::Emergency && plan.severity() != Severity::Mild {
+            if d.role == DrawRole::Onset
+                && setting == Setting::Emergency
+                && plan.severity() != Severity::Mild
+            {
                 draw.blood_gas = self.rng.bernoulli(0.5);
             }
             self.rows.draws.push(draw);
@@ -627,7 +869,14 @@ impl Sim<'_> {
 
     /// A hospital stay from `admit` on `unit`; returns its end. `poa` is the present-on-admission
     /// episode that caused it; `admission_draw` adds the usual draw soon after arrival.
-    fn stay(&mut self, admit: i64, unit: usize, kind: StayKind, poa: Option<EpisodePlan>, admission_draw: bool) -> i64 {
+    fn stay(
+        &mut self,
+        admit: i64,
+        unit: usize,
+        kind: StayKind,
+        poa: Option<EpisodePlan>,
+        admission_draw: bool,
+    ) -> i64 {
         let sc = self.sc;
         let site = UNITS[unit].site;
         // Length of stay: lognormal, median 4 days, σ 0.85 (mean 5.7 d; 2.6% beyond 3 weeks)
@@ -641,7 +890,9 @@ impl Sim<'_> {
         if los_days >= 1.0 {
             // Discharges happen in the day, 10:00–18:00 local.
             let day_start = end - sc.time.seconds_of_day(end);
-            let daytime = sc.time.next_time_of_day(day_start - 1, self.rng.int_between(10 * HOUR, 18 * HOUR));
+            let daytime = sc
+                .time
+                .next_time_of_day(day_start - 1, self.rng.int_between(10 * HOUR, 18 * HOUR));
             if daytime > admit + 12 * HOUR {
                 end = daytime;
             }
@@ -658,19 +909,33 @@ impl Sim<'_> {
         stay.cotrimoxazole_drug = None;
         stay.segments.push((admit, unit, NO_ENCOUNTER));
         if UNITS[unit].kind == UnitKind::CriticalCare {
-            let ward = unit_for(site, if self.p.heart_failure { UnitKind::Cardiology } else { UnitKind::Medicine });
-            let transfer = admit + self.hours(24.0, 72.0);
+            let ward = unit_for(
+                site,
+                if self.p.heart_failure {
+                    UnitKind::Cardiology
+                } else {
+                    UnitKind::Medicine
+                },
+            );
+            let transfer = ceil_minute(admit + self.hours(24.0, 72.0));
             end = end.max(transfer + self.hours(24.0, 120.0));
             stay.segments.push((transfer, ward, NO_ENCOUNTER));
         } else if los_days >= 2.0 && self.rng.bernoulli(0.08) {
-            let wards: Vec<usize> = [UnitKind::Medicine, UnitKind::Cardiology, UnitKind::Renal, UnitKind::Elderly, UnitKind::Surgery]
-                .into_iter()
-                .flat_map(|k| units_of(site, k))
-                .filter(|u| *u != unit)
-                .collect();
+            let wards: Vec<usize> = [
+                UnitKind::Medicine,
+                UnitKind::Cardiology,
+                UnitKind::Renal,
+                UnitKind::Elderly,
+                UnitKind::Surgery,
+            ]
+            .into_iter()
+            .flat_map(|k| units_of(site, k))
+            .filter(|u| *u != unit)
+            .collect();
             if !wards.is_empty() {
                 let other = *self.rng.pick(&wards);
-                let transfer = admit + ((end - admit) as f64 * self.rng.range(0.3, 0.7)) as i64;
+                let transfer =
+                    ceil_minute(admit + ((end - admit) as f64 * self.rng.range(0.3, 0.7)) as i64);
                 stay.segments.push((transfer, other, NO_ENCOUNTER));
             }
         }
@@ -679,12 +944,16 @@ impl Sim<'_> {
         if let Some(plan) = &poa {
             end = end.max(plan.end_at + self.hours(6.0, 30.0));
         } else {
-            // Hospital-acquired hazard from 48 h after admission.
-            let mut a = (admit + 48 * HOUR).max(self.restart_at);
+            // Hospital-acquired hazard from 49 h after admission.
+            let mut a = (admit + HOSPITAL_AT_RISK_FROM_HOURS * HOUR).max(self.restart_at);
             self.stay = stay;
             loop {
-                let b = end.min(sc.risk_end).min(self.exact_death.unwrap_or(i64::MAX));
-                let Some((tau, onset_unit, mask)) = self.stay_onset(a, b) else { break };
+                let b = end
+                    .min(sc.risk_end)
+                    .min(self.exact_death.unwrap_or(i64::MAX));
+                let Some((tau, onset_unit, mask)) = self.stay_onset(a, b) else {
+                    break;
+                };
                 let peak = episode::draw_peak(&mut self.rng);
                 let mut plan = EpisodePlan::default();
                 episode::plan(&mut self.rng, &sc.config, tau, peak, false, None, &mut plan);
@@ -707,12 +976,18 @@ impl Sim<'_> {
         if let Some(plan) = poa {
             stay.plans.push(plan);
         }
-        // Encounters of the stay, one per unit segment, joined by transfers.
-        stay.segments.retain(|s| s.0 < end);
+        // Encounters of the stay, one per unit segment, joined by transfers (none starting
+        // after death, discharge or the extract end).
+        end = ceil_minute(end);
+        stay.segments.retain(|s| s.0 < end && s.0 < sc.extract_end);
         let n = stay.segments.len();
         for i in 0..n {
             let (from, seg_unit, _) = stay.segments[i];
-            let to = if i + 1 < n { stay.segments[i + 1].0 } else { end };
+            let to = if i + 1 < n {
+                stay.segments[i + 1].0
+            } else {
+                end
+            };
             let status = if i + 1 < n {
                 DischargeStatus::Transfer
             } else if died {
@@ -753,7 +1028,7 @@ impl Sim<'_> {
         if let Some(w) = stay.aki {
             self.rows.aki.push(w);
         }
-        self.stay_diagnoses(&stay, &plans, admit, end);
+        self.stay_diagnoses(&stay, &plans, end);
         self.stay = stay;
         end
     }
@@ -770,8 +1045,8 @@ impl Sim<'_> {
             stay.heparin_from = Some(first);
             stay.windows.push((first, i64::MAX, Factor::Heparin.bit()));
         }
-        // IV potassium chloride in 6% of stays (hypokalemia correction): 1 + Poisson(0.8) infusions (at most 4) of
-        // 2–4 h, 6–12 h apart.
+        // IV potassium chloride in 6% of stays (hypokalemia correction): 1 + Poisson(0.8)
+        // infusions (at most 4) of 2–4 h, 6–12 h apart.
         if self.rng.bernoulli(0.06) {
             let mut t = admit + self.hours(2.0, 36.0);
             let infusions = 1 + self.rng.poisson(0.8).min(3);
@@ -784,7 +1059,8 @@ impl Sim<'_> {
                 t = end + self.hours(6.0, 12.0);
             }
             if let (Some(first), Some(last)) = (stay.kcl.first(), stay.kcl.last()) {
-                stay.windows.push((first.0, last.1 + DAY, Factor::PotassiumIv.bit()));
+                stay.windows
+                    .push((first.0, last.1 + DAY, Factor::PotassiumIv.bit()));
             }
         }
         // Inpatient co-trimoxazole in 3.5% of stays: twice daily for 5–10 days, oral or IV.
@@ -792,13 +1068,20 @@ impl Sim<'_> {
             let mut t = self.sc.time.next_time_of_day(admit + 4 * HOUR, 8 * HOUR);
             let last = t + self.rng.int_between(5, 10) * DAY;
             while t <= last && t < planned_end - 2 * HOUR {
-                stay.cotrimoxazole.push(t + self.rng.int_between(0, 30) * MINUTE);
+                stay.cotrimoxazole
+                    .push(t + self.rng.int_between(0, 30) * MINUTE);
                 t += 12 * HOUR;
             }
-            stay.cotrimoxazole_drug =
-                Some(if self.rng.bernoulli(0.5) { &formulary::CO_TRIMOXAZOLE_IV } else { &formulary::CO_TRIMOXAZOLE });
-            if let (Some(first), Some(last)) = (stay.cotrimoxazole.first(), stay.cotrimoxazole.last()) {
-                stay.windows.push((*first, *last + DAY, Factor::Trimethoprim.bit()));
+            stay.cotrimoxazole_drug = Some(if self.rng.bernoulli(0.5) {
+                &formulary::CO_TRIMOXAZOLE_IV
+            } else {
+                &formulary::CO_TRIMOXAZOLE
+            });
+            if let (Some(first), Some(last)) =
+                (stay.cotrimoxazole.first(), stay.cotrimoxazole.last())
+            {
+                stay.windows
+                    .push((*first, *last + DAY, Factor::Trimethoprim.bit()));
             }
         }
         // Acute kidney injury in 5% of stays, twice as often with eGFR < 45 and 1.5 times with
@@ -814,7 +1097,11 @@ impl Sim<'_> {
         if self.rng.bernoulli(p_aki) {
             let start = admit + self.hours(0.0, 72.0);
             let end = start + self.hours(48.0, 168.0);
-            stay.aki = Some(AkiWindow { start, end, peak_factor: self.rng.range(1.5, 3.0) });
+            stay.aki = Some(AkiWindow {
+                start,
+                end,
+                peak_factor: self.rng.range(1.5, 3.0),
+            });
         }
     }
 
@@ -831,8 +1118,11 @@ impl Sim<'_> {
         };
         if let Some(from) = stay.heparin_from {
             // Unfractionated heparin twice daily when eGFR < 30, otherwise enoxaparin daily.
-            let (drug, step) =
-                if self.p.egfr < 30.0 { (&formulary::HEPARIN, 12 * HOUR) } else { (&formulary::ENOXAPARIN, DAY) };
+            let (drug, step) = if self.p.egfr < 30.0 {
+                (&formulary::HEPARIN, 12 * HOUR)
+            } else {
+                (&formulary::ENOXAPARIN, DAY)
+            };
             let mut t = from;
             while t < end - HOUR && t < stop {
                 let at = t + self.rng.int_between(0, 40) * MINUTE;
@@ -846,13 +1136,21 @@ impl Sim<'_> {
                 let at = stay.admit + self.hours(0.5, 3.0);
                 if at < stop {
                     let order_end = (end < self.sc.extract_end).then_some(end);
-                    self.rows.meds.push(MedRec { kind: MedKind::Order, end_at: order_end, ..administer(drug, at, None) });
+                    self.rows.meds.push(MedRec {
+                        kind: MedKind::Order,
+                        end_at: order_end,
+                        ..administer(drug, at, None)
+                    });
                 }
             }
         }
         for &(from, to) in &stay.kcl {
             if from < stop {
-                self.rows.meds.push(administer(&formulary::POTASSIUM_CHLORIDE_IV, from, Some(to)));
+                self.rows.meds.push(administer(
+                    &formulary::POTASSIUM_CHLORIDE_IV,
+                    from,
+                    Some(to),
+                ));
             }
         }
         if let Some(drug) = stay.cotrimoxazole_drug {
@@ -865,7 +1163,15 @@ impl Sim<'_> {
         }
     }
 
-    fn routine_draws(&mut self, stay: &Stay, end: i64, stop: i64, site: usize, admission_draw: bool, planned: &[i64]) {
+    fn routine_draws(
+        &mut self,
+        stay: &Stay,
+        end: i64,
+        stop: i64,
+        site: usize,
+        admission_draw: bool,
+        planned: &[i64],
+    ) {
         let near_planned = |t: i64| planned.iter().any(|p| (p - t).abs() < 3 * HOUR);
         let add = |sim: &mut Self, at: i64| {
             if at >= stop || near_planned(at) {
@@ -874,7 +1180,15 @@ impl Sim<'_> {
             let (_, enc) = stay.segment_at(at);
             let enc_end = stay.segment_end(at, end);
             let panel = sim.routine_panel(Setting::Inpatient);
-            sim.draw(at, enc, enc_end, site, Setting::Inpatient, Role::Routine, panel);
+            sim.rows.draws.push(Draw::new(
+                at,
+                enc,
+                enc_end,
+                site,
+                Setting::Inpatient,
+                Role::Routine,
+                panel,
+            ));
         };
         if admission_draw {
             let at = stay.admit + self.rng.int_between(15, 90) * MINUTE;
@@ -883,7 +1197,10 @@ impl Sim<'_> {
         // Morning bloods on most days (85%), twice daily in critical care (common practice).
         let mut day = stay.admit + 2 * HOUR;
         loop {
-            let morning = self.sc.time.next_time_of_day(day, self.rng.int_between(5 * HOUR + 1800, 7 * HOUR + 1800));
+            let morning = self
+                .sc
+                .time
+                .next_time_of_day(day, self.rng.int_between(5 * HOUR + 1800, 7 * HOUR + 1800));
             if morning >= end - 30 * MINUTE || morning >= stop {
                 break;
             }
@@ -901,18 +1218,30 @@ impl Sim<'_> {
         }
     }
 
-    fn stay_diagnoses(&mut self, stay: &Stay, plans: &[EpisodePlan], admit: i64, end: i64) {
-        let Some(&(_, _, enc)) = stay.segments.last() else { return };
+    fn stay_diagnoses(&mut self, stay: &Stay, plans: &[EpisodePlan], end: i64) {
+        let Some(&(last_from, _, enc)) = stay.segments.last() else {
+            return;
+        };
+        // Coded at discharge; for a stay still open at the extract end, soon after the start of
+        // its current encounter.
         let at = if end < self.sc.extract_end {
             end
         } else {
-            admit + ((self.sc.extract_end - admit) / 2).min(2 * HOUR)
+            last_from + ((self.sc.extract_end - last_from) / 2).min(2 * HOUR)
         };
         if !plans.is_empty() && self.rng.bernoulli(0.6) {
-            self.rows.diags.push(DiagRec { encounter: enc, code: "E87.5", recorded_at: at });
+            self.rows.diags.push(DiagRec {
+                encounter: enc,
+                code: "E87.5",
+                recorded_at: at,
+            });
         }
         if stay.aki.is_some() && self.rng.bernoulli(0.7) {
-            self.rows.diags.push(DiagRec { encounter: enc, code: "N17.9", recorded_at: at });
+            self.rows.diags.push(DiagRec {
+                encounter: enc,
+                code: "N17.9",
+                recorded_at: at,
+            });
         }
         self.chronic_diagnoses(enc, at, 0.75);
     }
@@ -931,7 +1260,11 @@ impl Sim<'_> {
             // Rare conditions are coded almost always once known.
             let p_code = if code.starts_with("E27") { 0.9 } else { p };
             if self.rng.bernoulli(p_code) {
-                self.rows.diags.push(DiagRec { encounter: enc, code, recorded_at: at });
+                self.rows.diags.push(DiagRec {
+                    encounter: enc,
+                    code,
+                    recorded_at: at,
+                });
             }
         }
     }
@@ -943,8 +1276,10 @@ impl Sim<'_> {
         let rows = &mut *self.rows;
         let stop = rows.death_at.unwrap_or(sc.extract_end).min(sc.extract_end);
         rows.draws.retain(|d| d.at < stop);
-        rows.meds.retain(|m| m.start_at < sc.extract_end && m.start_at <= stop);
-        rows.diags.retain(|d| d.recorded_at < sc.extract_end && d.recorded_at <= stop);
+        rows.meds
+            .retain(|m| m.start_at < sc.extract_end && m.start_at <= stop);
+        rows.diags
+            .retain(|d| d.recorded_at < sc.extract_end && d.recorded_at <= stop);
         for d in &rows.drugs.dispensings {
             if d.at < stop {
                 rows.meds.push(MedRec {
@@ -970,21 +1305,40 @@ impl Sim<'_> {
             &mut rows.draws,
         );
         let mut counts = SpecimenCounts::default();
-        specimen::count(&rows.draws, &rows.windows, &mut counts);
-        specimen::lab_rows(&mut self.rng, &self.p, &rows.draws, &rows.aki, sc.extract_end, &mut counts, &mut rows.labs);
+        specimen::count(&sc.time, &rows.draws, &rows.windows, &mut counts);
+        specimen::lab_rows(
+            &mut self.rng,
+            &self.p,
+            &rows.draws,
+            &rows.aki,
+            sc.extract_end,
+            &mut counts,
+            &mut rows.labs,
+        );
         self.tally.specimens(&counts);
         self.tally.patient(&self.p, rows, sc);
         // Planted facts that depend on the final rows.
         for e in &rows.episodes {
             if e.severity == Severity::Severe {
-                let died_30 = rows.death_at.is_some_and(|d| d > e.onset_at && d - e.onset_at <= 30 * DAY);
+                let died_30 = rows
+                    .death_at
+                    .is_some_and(|d| d > e.onset_at && d - e.onset_at <= 30 * DAY);
                 self.tally.severe_death(died_30);
             }
         }
         for m in &rows.meds {
             if m.drug.class == DrugClass::RegularInsulin && m.kind == MedKind::Administer {
+                // Times as a reader of the local-time files sees them.
+                let read = |t: i64, form| sc.time.instant_of_local(sc.time.written_local(t, form));
+                let given = read(m.start_at, TimeForm::Seconds);
                 let window = rows.labs.iter().filter(|l| {
-                    l.test == crate::record::Test::Glucose && l.collected_at > m.start_at && l.collected_at - m.start_at <= 6 * HOUR
+                    let form = if SITES[l.site].collection_seconds {
+                        TimeForm::Seconds
+                    } else {
+                        TimeForm::Minutes
+                    };
+                    let at = read(l.collected_at, form);
+                    l.test == crate::record::Test::Glucose && at > given && at - given <= 6 * HOUR
                 });
                 let mut checked = false;
                 let mut low = false;

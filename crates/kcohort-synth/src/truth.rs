@@ -32,6 +32,8 @@ const SETTING_NAMES: [&str; 2] = ["community", "hospital"];
 struct Cell {
     days: f64,
     episodes: u64,
+    /// Expected episodes without the rate step: Σ baseline × HR(factors) × days.
+    expected: f64,
 }
 
 impl Cell {
@@ -85,12 +87,15 @@ pub(crate) struct Tally {
     pub episodes_rebound: u64,
     severe_episodes: u64,
     severe_deaths_30d: u64,
+    severe_deaths_planted: u64,
     insulin_treatments: u64,
     insulin_checked: u64,
     insulin_hypoglycemia: u64,
     /// [before, after] the step month, in the step unit.
     step: [Cell; 2],
     months: Vec<MonthTally>,
+    /// Time at risk and onsets by (setting, exact factor mask).
+    strata: BTreeMap<(usize, u32), Cell>,
     initiators: [u64; 3],
     initiators_after_washout: [u64; 3],
 }
@@ -128,11 +133,13 @@ impl Tally {
             episodes_rebound: 0,
             severe_episodes: 0,
             severe_deaths_30d: 0,
+            severe_deaths_planted: 0,
             insulin_treatments: 0,
             insulin_checked: 0,
             insulin_hypoglycemia: 0,
             step: [Cell::default(); 2],
             months: vec![MonthTally::default(); sc.month_starts.len()],
+            strata: BTreeMap::new(),
             initiators: [0; 3],
             initiators_after_washout: [0; 3],
         }
@@ -142,6 +149,7 @@ impl Tally {
     fn cells(&mut self, setting: TimeSetting, mask: u32, mut f: impl FnMut(&mut Cell)) {
         let s = setting as usize;
         f(&mut self.setting[s]);
+        f(self.strata.entry((s, mask)).or_default());
         for factor in FACTORS {
             if factor.is_active(mask) {
                 f(&mut self.factor_exposed[s][factor.index()]);
@@ -161,14 +169,23 @@ impl Tally {
         }
     }
 
-    /// Time at risk: `days` with factors `mask`; `step_side` is Some(after the step month) when
-    /// the time is in the step unit.
-    pub(crate) fn at_risk(&mut self, setting: TimeSetting, mask: u32, days: f64, step_side: Option<bool>, month: usize) {
+    /// Time at risk: `days` with factors `mask` and hazard `rate_per_day` before any rate step;
+    /// `step_side` is Some(after the step month) when the time is in the step unit.
+    pub(crate) fn at_risk(
+        &mut self,
+        setting: TimeSetting,
+        mask: u32,
+        days: f64,
+        rate_per_day: f64,
+        step_side: Option<bool>,
+        month: usize,
+    ) {
         self.cells(setting, mask, |c| c.add_days(days));
         if setting == TimeSetting::Hospital {
             self.months[month].hospital_days += days;
             if let Some(after) = step_side {
                 self.step[usize::from(after)].days += days;
+                self.step[usize::from(after)].expected += days * rate_per_day;
                 self.months[month].step_unit_days += days;
             }
         }
@@ -195,6 +212,7 @@ impl Tally {
         self.peak_above_7 += u64::from(plan.peak > 7.0);
         self.treated += u64::from(plan.treated);
         self.treated_with_insulin += u64::from(plan.insulin_at.is_some());
+        self.severe_deaths_planted += u64::from(plan.death_at.is_some());
         match setting {
             TimeSetting::Hospital => {
                 self.months[month].hospital_acquired += 1;
@@ -239,7 +257,12 @@ impl Tally {
     }
 
     /// Population, encounter and new-user counts of a finished patient.
-    pub(crate) fn patient(&mut self, p: &crate::profile::Profile, rows: &PatientRows, sc: &Scenario) {
+    pub(crate) fn patient(
+        &mut self,
+        p: &crate::profile::Profile,
+        rows: &PatientRows,
+        sc: &Scenario,
+    ) {
         self.patients += 1;
         self.sex[match p.sex {
             Sex::Female => 0,
@@ -469,7 +492,20 @@ pub struct HazardTruth {
     pub factors: Vec<FactorStratum>,
     pub mra_by_egfr: Vec<MraCell>,
     pub raas_vs_ccb_exposure: Vec<ComparatorCell>,
+    /// Time at risk and onsets for every combination of factors that occurred: the exact
+    /// strata of the planted model (a Mantel–Haenszel rate ratio over them recovers each HR).
+    pub strata: Vec<Stratum>,
     pub initiators: BTreeMap<String, InitiatorTruth>,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Stratum {
+    pub setting: String,
+    /// Names of the factors present (empty: none).
+    pub factors: Vec<String>,
+    pub person_days: f64,
+    pub episodes: u64,
 }
 
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -537,6 +573,10 @@ pub struct StepTruth {
 pub struct StepSide {
     pub hospital_acquired: u64,
     pub at_risk_days: f64,
+    /// Episodes expected in that time without the step (Σ baseline × HR × days): the ratio
+    /// (observed/expected after) / (observed/expected before) estimates the step factor without
+    /// the dilution a crude rate ratio suffers when high-risk patients leave the risk set early.
+    pub expected_without_step: f64,
 }
 
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -556,6 +596,10 @@ pub struct HypoglycemiaTruth {
 pub struct SevereDeathTruth {
     pub stated: f64,
     pub severe_episodes: u64,
+    /// Severe episodes given a planted death (Binomial(severe_episodes, stated)); the death is
+    /// at a uniform time 0.5–30 days after onset, unless the extract ends or the patient dies
+    /// earlier.
+    pub planted_deaths: u64,
     /// Deaths from any cause within 30 days after the onset of a severe episode.
     pub deaths_within_30_days: u64,
 }
@@ -577,12 +621,32 @@ fn mean_sd(n: u64, sum: f64, squares: f64) -> (f64, f64) {
     }
     let nf = n as f64;
     let mean = sum / nf;
-    let var = if n > 1 { ((squares - nf * mean * mean) / (nf - 1.0)).max(0.0) } else { 0.0 };
+    let var = if n > 1 {
+        ((squares - nf * mean * mean) / (nf - 1.0)).max(0.0)
+    } else {
+        0.0
+    };
     (mean, var.sqrt())
 }
 
 fn share(x: u64, n: u64) -> f64 {
-    if n == 0 { 0.0 } else { x as f64 / n as f64 }
+    if n == 0 {
+        0.0
+    } else {
+        round(x as f64 / n as f64, 6)
+    }
+}
+
+/// Rounded to `decimals` places, so that the value is written with few digits and reads back
+/// exactly (short decimals parse without rounding error).
+fn round(x: f64, decimals: i32) -> f64 {
+    let scale = 10f64.powi(decimals);
+    (x * scale).round() / scale
+}
+
+/// Person-days to 4 decimals (about 9 seconds).
+fn days(x: f64) -> f64 {
+    round(x, 4)
 }
 
 impl Truth {
@@ -591,6 +655,7 @@ impl Truth {
         let time = &sc.time;
         let sp = &t.specimens;
         let (mean, sd) = mean_sd(sp.baseline_n, sp.baseline_sum, sp.baseline_sum_squares);
+        let (mean, sd) = (round(mean, 6), round(sd, 6));
         let kind_name = |k: network::UnitKind| format!("{k:?}").to_lowercase();
         let network = NetworkTruth {
             name: NETWORK_NAME.into(),
@@ -614,7 +679,11 @@ impl Truth {
                 .collect(),
             units: UNITS
                 .iter()
-                .map(|u| UnitTruth { name: u.name.into(), site: SITES[u.site].name.into(), kind: kind_name(u.kind) })
+                .map(|u| UnitTruth {
+                    name: u.name.into(),
+                    site: SITES[u.site].name.into(),
+                    kind: kind_name(u.kind),
+                })
                 .collect(),
         };
         let by_severity = [("mild", 0), ("moderate", 1), ("severe", 2)]
@@ -626,23 +695,30 @@ impl Truth {
             by_cause.insert(f.name().into(), t.by_label[f.index()]);
         }
         by_cause.insert(BACKGROUND.into(), t.by_label[14]);
-        let with_factor_at_onset = FACTORS.iter().map(|f| (f.name().to_string(), t.with_factor[f.index()])).collect();
+        let with_factor_at_onset = FACTORS
+            .iter()
+            .map(|f| (f.name().to_string(), t.with_factor[f.index()]))
+            .collect();
         let mut factors = Vec::new();
         let mut mra_by_egfr = Vec::new();
         let mut comparator = Vec::new();
         let mut at_risk = Vec::new();
-        for s in 0..2 {
-            let setting = SETTING_NAMES[s].to_string();
-            at_risk.push(RiskCell { setting: setting.clone(), person_days: t.setting[s].days, episodes: t.setting[s].episodes });
+        for (s, name) in SETTING_NAMES.iter().enumerate() {
+            let setting = name.to_string();
+            at_risk.push(RiskCell {
+                setting: setting.clone(),
+                person_days: days(t.setting[s].days),
+                episodes: t.setting[s].episodes,
+            });
             for f in FACTORS {
                 let e = t.factor_exposed[s][f.index()];
                 let u = t.factor_unexposed[s][f.index()];
                 factors.push(FactorStratum {
                     factor: f.name().into(),
                     setting: setting.clone(),
-                    exposed_person_days: e.days,
+                    exposed_person_days: days(e.days),
                     exposed_episodes: e.episodes,
-                    unexposed_person_days: u.days,
+                    unexposed_person_days: days(u.days),
                     unexposed_episodes: u.episodes,
                 });
             }
@@ -653,33 +729,40 @@ impl Truth {
                         setting: setting.clone(),
                         egfr_below_45: egfr == 1,
                         mra: mra == 1,
-                        person_days: cell.days,
+                        person_days: days(cell.days),
                         episodes: cell.episodes,
                     });
                 }
             }
-            for (i, name) in ["raas_without_ccb", "ccb_without_raas"].into_iter().enumerate() {
+            for (i, name) in ["raas_without_ccb", "ccb_without_raas"]
+                .into_iter()
+                .enumerate()
+            {
                 let cell = t.comparator_cells[s][i];
                 comparator.push(ComparatorCell {
                     setting: setting.clone(),
                     exposure: name.into(),
-                    person_days: cell.days,
+                    person_days: days(cell.days),
                     episodes: cell.episodes,
                 });
             }
         }
-        let initiators = [("raas_inhibitor", Tracked::Raas), ("calcium_channel_blocker", Tracked::Ccb), ("mra", Tracked::Mra)]
-            .into_iter()
-            .map(|(name, tr)| {
-                (
-                    name.to_string(),
-                    InitiatorTruth {
-                        planted_initiators: t.initiators[tr as usize],
-                        first_dispensing_after_365_days: t.initiators_after_washout[tr as usize],
-                    },
-                )
-            })
-            .collect();
+        let initiators = [
+            ("raas_inhibitor", Tracked::Raas),
+            ("calcium_channel_blocker", Tracked::Ccb),
+            ("mra", Tracked::Mra),
+        ]
+        .into_iter()
+        .map(|(name, tr)| {
+            (
+                name.to_string(),
+                InitiatorTruth {
+                    planted_initiators: t.initiators[tr as usize],
+                    first_dispensing_after_365_days: t.initiators_after_washout[tr as usize],
+                },
+            )
+        })
+        .collect();
         let monthly = sc
             .month_labels
             .iter()
@@ -688,9 +771,9 @@ impl Truth {
                 month: label.clone(),
                 hospital_acquired: m.hospital_acquired,
                 present_on_admission: m.present_on_admission,
-                hospital_at_risk_days: m.hospital_days,
+                hospital_at_risk_days: days(m.hospital_days),
                 step_unit_hospital_acquired: m.step_unit_hospital_acquired,
-                step_unit_at_risk_days: m.step_unit_days,
+                step_unit_at_risk_days: days(m.step_unit_days),
             })
             .collect();
         let total = t.setting[0].episodes + t.setting[1].episodes;
@@ -712,7 +795,11 @@ impl Truth {
                 male: t.sex[1],
                 unknown_sex: t.sex[2],
                 stated_sex_shares: [0.51, 0.488, 0.002],
-                age_bands: AGE_BANDS.iter().zip(t.age_bands).map(|((name, _, _), n)| (name.to_string(), n)).collect(),
+                age_bands: AGE_BANDS
+                    .iter()
+                    .zip(t.age_bands)
+                    .map(|((name, _, _), n)| (name.to_string(), n))
+                    .collect(),
                 hypertension: t.hypertension,
                 diabetes: t.diabetes,
                 heart_failure: t.heart_failure,
@@ -728,7 +815,7 @@ impl Truth {
                 hospital_stays: t.stays,
                 transfers: t.transfers,
                 open_admissions: t.open_admissions,
-                inpatient_days: t.inpatient_days,
+                inpatient_days: days(t.inpatient_days),
             },
             potassium: PotassiumTruth {
                 serum_plasma_results: sp.serum_potassium,
@@ -744,7 +831,13 @@ impl Truth {
                     hemolysed_high: sp.hemolysed_high,
                     hemolysed_high_refuted: sp.hemolysed_high_refuted,
                 },
-                baseline: BaselineTruth { stated_mean: 4.3, stated_sd: 0.4, results: sp.baseline_n, mean, sd },
+                baseline: BaselineTruth {
+                    stated_mean: 4.3,
+                    stated_sd: 0.4,
+                    results: sp.baseline_n,
+                    mean,
+                    sd,
+                },
                 spurious: SpuriousTruth {
                     stated_share: c.spurious_high_share,
                     planted: sp.spurious_planted,
@@ -771,21 +864,44 @@ impl Truth {
                 community_per_day: c.community_hazard_per_day,
                 inpatient_per_day: c.inpatient_hazard_per_day,
                 hazard_ratios: c.hazard_ratios.clone(),
-                raas_vs_ccb: c.hazard_ratios.raas_inhibitor / c.hazard_ratios.calcium_channel_blocker,
-                hospital_at_risk_from_hours: 48,
+                raas_vs_ccb: c.hazard_ratios.raas_inhibitor
+                    / c.hazard_ratios.calcium_channel_blocker,
+                hospital_at_risk_from_hours: crate::timeline::HOSPITAL_AT_RISK_FROM_HOURS as u32,
                 at_risk_gap_days: 7.5,
                 at_risk,
                 factors,
                 mra_by_egfr,
                 raas_vs_ccb_exposure: comparator,
+                strata: t
+                    .strata
+                    .iter()
+                    .map(|((s, mask), cell)| Stratum {
+                        setting: SETTING_NAMES[*s].into(),
+                        factors: FACTORS
+                            .iter()
+                            .filter(|f| f.is_active(*mask))
+                            .map(|f| f.name().to_string())
+                            .collect(),
+                        person_days: days(cell.days),
+                        episodes: cell.episodes,
+                    })
+                    .collect(),
                 initiators,
             },
             rate_step: StepTruth {
                 unit: c.step_unit.clone(),
                 month: c.step_month.clone(),
                 factor: c.step_factor,
-                before: StepSide { hospital_acquired: t.step[0].episodes, at_risk_days: t.step[0].days },
-                after: StepSide { hospital_acquired: t.step[1].episodes, at_risk_days: t.step[1].days },
+                before: StepSide {
+                    hospital_acquired: t.step[0].episodes,
+                    at_risk_days: days(t.step[0].days),
+                    expected_without_step: round(t.step[0].expected, 4),
+                },
+                after: StepSide {
+                    hospital_acquired: t.step[1].episodes,
+                    at_risk_days: days(t.step[1].days),
+                    expected_without_step: round(t.step[1].expected, 4),
+                },
             },
             hypoglycemia: HypoglycemiaTruth {
                 stated_share: c.hypoglycemia_after_insulin,
@@ -798,6 +914,7 @@ impl Truth {
             severe_death_30d: SevereDeathTruth {
                 stated: c.severe_death_30d,
                 severe_episodes: t.severe_episodes,
+                planted_deaths: t.severe_deaths_planted,
                 deaths_within_30_days: t.severe_deaths_30d,
             },
             monthly,
@@ -818,7 +935,7 @@ emergency encounter). A rebound is a high within 24 h after normalisation.";
 
 const NOTES: &[&str] = &[
     "Every patient is observed from the period start to death or the extract end (members of an integrated network whose hospital care and outpatient dispensings are all in the extract).",
-    "Hazard of a true episode = baseline per day at risk x product of the hazard ratios of the factors present. Community time and hospital time from 48 h after admission are at risk; emergency-department time, the first 48 h of a stay, stays that began with a present-on-admission episode, and the time from an onset to 7.5 days after the episode's end are not.",
+    "Hazard of a true episode = baseline per day at risk x product of the hazard ratios of the factors present. Community time and hospital time from 49 h after admission are at risk (one hour beyond the 48 h of the reading, so no onset sits on its edge); emergency-department time, the first 49 h of a stay, stays that began with a present-on-admission episode, and the time from an onset to 7.5 days after the episode's end are not.",
     "eGFR < 45 is the patient's usual kidney function: CKD-EPI 2021 of the usual creatinine. Measured creatinine scatters around it (CV 5%) and rises during acute kidney injury, so a reading from one measured value misclassifies some patients near the cut-off.",
     "Outpatient drug exposure runs from a dispensing for its days' supply; refills up to 12 days late are bridged; stopped courses leave gaps of at least 180 days. Inpatient heparin counts from the first dose to discharge, IV potassium and co-trimoxazole from the first dose to 24 h after the last. Home medicines continue during stays without administration rows.",
     "Cause label: with probability 1/HR(total) no factor (background), otherwise one present factor with HR > 1, chosen with probability proportional to ln HR. with_factor_at_onset counts every factor present.",
@@ -826,4 +943,6 @@ const NOTES: &[&str] = &[
     "Clean draws carrying planted facts (onset, confirmation, normalisation, rebound, refuting repeats) are never hemolysed; the stated hemolysed share applies to the other specimens with an index (eligible_specimens).",
     "Glucose outside the post-insulin checks is kept at 72 mg/dL or above, so every glucose < 70 within 6 h after insulin is a planted hypoglycemia.",
     "Planted malformed rows are extra rows (copies of a real row with exactly one defect, or exact duplicates); every other row is valid, so a validator's rejects equal planted_defects.",
+    "Times are written in the site zone without offset. In the hour repeated when clocks go back, a reader takes the first occurrence, so there the order of two events can look up to an hour off (as in any zoneless extract); planted windows keep at least an hour of margin (onsets from 49 h after admission, confirmations within 4 h 10 min, refuting repeats within 4 h).",
+    "Encounter boundaries are whole minutes. Person-days and other real numbers in this file are rounded (person-days to 4 decimals).",
 ];

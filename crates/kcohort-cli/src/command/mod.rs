@@ -1,7 +1,9 @@
 //! The commands of `kcohort` and their arguments.
 
 mod bench;
+mod derive;
 mod ingest;
+mod init_study;
 mod stats;
 mod synth;
 
@@ -25,6 +27,10 @@ pub struct Cli {
 pub enum Command {
     /// Check every row of an extract and write it into a Parquet store (rejects kept with reasons).
     Ingest(ingest::IngestArgs),
+    /// Write the default study file (every parameter with its default and a comment).
+    InitStudy(init_study::InitStudyArgs),
+    /// Run the SQL definitions over a store: episodes and the other derived tables.
+    Derive(derive::DeriveArgs),
     /// Write a synthetic extract of the fictional Larkmoor Health network, with planted truths.
     Synth(synth::SynthArgs),
     /// Print speed and memory figures (rows/s, peak RSS) for the benchmarks.
@@ -36,6 +42,8 @@ pub enum Command {
 pub fn run(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Ingest(args) => ingest::run(args),
+        Command::InitStudy(args) => init_study::run(args),
+        Command::Derive(args) => derive::run(args),
         Command::Stats(args) => stats::run(args),
         Command::Synth(args) => synth::run(args),
         Command::Bench(args) => bench::run(args),

@@ -27,6 +27,7 @@
 
 use crate::store::{batch, parse_time, write_store};
 use datafusion::arrow::util::display::{ArrayFormatter, FormatOptions};
+use datafusion::execution::context::SQLOptions;
 use datafusion::prelude::SessionContext;
 use kcohort_engine::{EngineOptions, derive_async, read_manifest, register_store, session};
 use kcohort_model::TableName;
@@ -87,9 +88,7 @@ impl KcohortSlt {
         let mut lines = text.lines();
         let header = lines.next().unwrap_or_default();
         let rest = header.trim_start_matches("load").trim();
-        let (name, columns) = rest
-            .split_once('(')
-            .ok_or("load <table> (<column>, ...)")?;
+        let (name, columns) = rest.split_once('(').ok_or("load <table> (<column>, ...)")?;
         let table = TableName::parse(name.trim()).ok_or(format!("no table `{}`", name.trim()))?;
         let columns: Vec<String> = columns
             .trim_end_matches(')')
@@ -100,7 +99,11 @@ impl KcohortSlt {
         for line in lines.filter(|l| !l.trim().is_empty()) {
             let values: Vec<&str> = line.split_whitespace().collect();
             if values.len() != columns.len() {
-                return Err(format!("`{line}`: {} values for {} columns", values.len(), columns.len()));
+                return Err(format!(
+                    "`{line}`: {} values for {} columns",
+                    values.len(),
+                    columns.len()
+                ));
             }
             rows.push(
                 columns
@@ -126,7 +129,10 @@ impl KcohortSlt {
         let mut tables = self.tables.clone();
         let listed = tables.entry(TableName::Patients).or_default();
         for p in patients {
-            if !listed.iter().any(|r| r.get("patient_id") == Some(&Some(p.clone()))) {
+            if !listed
+                .iter()
+                .any(|r| r.get("patient_id") == Some(&Some(p.clone())))
+            {
                 listed.push(BTreeMap::from([("patient_id".to_string(), Some(p))]));
             }
         }
@@ -136,10 +142,10 @@ impl KcohortSlt {
             let b = batch(*table, rows)?;
             for row in rows {
                 for (column, value) in row {
-                    if column.ends_with("_at") {
-                        if let Some(v) = value.as_deref().filter(|v| *v != "NULL") {
-                            latest = latest.max(parse_time(v)?);
-                        }
+                    if column.ends_with("_at")
+                        && let Some(v) = value.as_deref().filter(|v| *v != "NULL")
+                    {
+                        latest = latest.max(parse_time(v)?);
                     }
                 }
             }
@@ -152,7 +158,9 @@ impl KcohortSlt {
         write_store(&root, &batches, extract_end, &self.site_timezone);
         let study = self.study.clone();
         let ctx = self.runtime.block_on(async {
-            derive_async(&root, &study, &options()).await.map_err(|e| format!("{e}"))?;
+            derive_async(&root, &study, &options())
+                .await
+                .map_err(|e| format!("{e}"))?;
             let manifest = read_manifest(&root).map_err(|e| e.to_string())?;
             let ctx = session(&options()).map_err(|e| e.to_string())?;
             register_store(&ctx, &root, &manifest).map_err(|e| e.to_string())?;
@@ -164,15 +172,23 @@ impl KcohortSlt {
 
     fn query(&mut self, sql: &str) -> Result<DBOutput<DefaultColumnType>, String> {
         let ctx = self.ctx.as_ref().ok_or("run `derive` before queries")?;
-        let batches = self.runtime.block_on(async {
-            ctx.sql(sql).await?.collect().await
+        let result = self.runtime.block_on(async {
+            // Queries in .slt files only read.
+            let read_only = SQLOptions::new()
+                .with_allow_ddl(false)
+                .with_allow_dml(false)
+                .with_allow_statements(false);
+            let frame = ctx.sql_with_options(sql, read_only).await?;
+            let n_columns = frame.schema().fields().len();
+            Ok::<_, datafusion::error::DataFusionError>((n_columns, frame.collect().await?))
         });
-        let batches = batches.map_err(|e| e.to_string())?;
+        let (n_columns, batches) = result.map_err(|e| e.to_string())?;
+        if n_columns == 0 {
+            return Ok(DBOutput::StatementComplete(0));
+        }
         let options = FormatOptions::default().with_null("NULL");
         let mut rows = Vec::new();
-        let mut n_columns = 0;
         for b in &batches {
-            n_columns = b.num_columns();
             let formatters = b
                 .columns()
                 .iter()
@@ -182,9 +198,6 @@ impl KcohortSlt {
             for i in 0..b.num_rows() {
                 rows.push(formatters.iter().map(|f| f.value(i).to_string()).collect());
             }
-        }
-        if batches.is_empty() || (rows.is_empty() && n_columns == 0) {
-            return Ok(DBOutput::StatementComplete(0));
         }
         Ok(DBOutput::Rows {
             types: vec![DefaultColumnType::Any; n_columns],
@@ -256,5 +269,10 @@ fn golden_slt_files() {
             failures.push(format!("{}\n{}", file.display(), e.display(false)));
         }
     }
-    assert!(failures.is_empty(), "{} slt file(s) failed:\n{}", failures.len(), failures.join("\n"));
+    assert!(
+        failures.is_empty(),
+        "{} slt file(s) failed:\n{}",
+        failures.len(),
+        failures.join("\n")
+    );
 }

@@ -25,7 +25,11 @@ pub fn parse_time(text: &str) -> Result<i64, String> {
         Some(i) => (&text[..i], &text[i..]),
         None => (text, "Z"),
     };
-    let body = if body.len() == 16 { format!("{body}:00") } else { body.to_string() };
+    let body = if body.len() == 16 {
+        format!("{body}:00")
+    } else {
+        body.to_string()
+    };
     chrono::DateTime::parse_from_rfc3339(&format!("{body}{zone}"))
         .map(|t| t.timestamp_micros())
         .map_err(|e| format!("time `{text}`: {e}"))
@@ -39,7 +43,12 @@ pub fn format_time(micros: i64) -> String {
 }
 
 /// Default text of a column a test leaves out.
-fn default_value(table: TableName, column: &str, row: &BTreeMap<String, Option<String>>, i: usize) -> Option<String> {
+fn default_value(
+    table: TableName,
+    column: &str,
+    row: &BTreeMap<String, Option<String>>,
+    i: usize,
+) -> Option<String> {
     let v = |s: &str| Some(s.to_string());
     match (table, column) {
         (TableName::Patients, "sex") => v("U"),
@@ -61,7 +70,10 @@ fn default_value(table: TableName, column: &str, row: &BTreeMap<String, Option<S
 }
 
 /// Build a batch of a stored table from rows of (column → text); `None` or `NULL` is null.
-pub fn batch(table: TableName, rows: &[BTreeMap<String, Option<String>>]) -> Result<RecordBatch, String> {
+pub fn batch(
+    table: TableName,
+    rows: &[BTreeMap<String, Option<String>>],
+) -> Result<RecordBatch, String> {
     let schema = stored_schema(table);
     let mut columns: Vec<ArrayRef> = Vec::new();
     for field in schema.fields() {
@@ -87,14 +99,22 @@ pub fn batch(table: TableName, rows: &[BTreeMap<String, Option<String>>]) -> Res
             DataType::Int32 => {
                 let mut b = Int32Builder::new();
                 for t in &texts {
-                    b.append_option(t.as_deref().map(|s| s.parse().map_err(|e| format!("{name} `{s}`: {e}"))).transpose()?);
+                    b.append_option(
+                        t.as_deref()
+                            .map(|s| s.parse().map_err(|e| format!("{name} `{s}`: {e}")))
+                            .transpose()?,
+                    );
                 }
                 Arc::new(b.finish())
             }
             DataType::Float64 => {
                 let mut b = Float64Builder::new();
                 for t in &texts {
-                    b.append_option(t.as_deref().map(|s| s.parse().map_err(|e| format!("{name} `{s}`: {e}"))).transpose()?);
+                    b.append_option(
+                        t.as_deref()
+                            .map(|s| s.parse().map_err(|e| format!("{name} `{s}`: {e}")))
+                            .transpose()?,
+                    );
                 }
                 Arc::new(b.finish())
             }
@@ -123,13 +143,21 @@ fn write_parquet(path: &Path, batch: &RecordBatch) -> StoredFile {
         path: String::new(),
         rows: batch.num_rows() as u64,
         bytes: bytes.len() as u64,
-        sha256: format!("{:x}", Sha256::digest(&bytes)),
+        sha256: Sha256::digest(&bytes)
+            .iter()
+            .map(|b| format!("{b:02x}"))
+            .collect(),
     }
 }
 
 /// Write a store holding these batches (one file per table; tables not given have no files)
 /// and its manifest.
-pub fn write_store(root: &Path, batches: &[(TableName, RecordBatch)], extract_end_micros: i64, site_timezone: &str) {
+pub fn write_store(
+    root: &Path,
+    batches: &[(TableName, RecordBatch)],
+    extract_end_micros: i64,
+    site_timezone: &str,
+) {
     let mut tables = BTreeMap::new();
     for table in TableName::ALL {
         let mut stored = StoredTable::default();

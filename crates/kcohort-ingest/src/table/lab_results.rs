@@ -8,7 +8,6 @@ use arrow_array::{ArrayRef, RecordBatch};
 use kcohort_model::code::is_valid_loinc;
 use kcohort_model::store_schema::stored_schema;
 use kcohort_model::{Analyte, RejectReason, TableName};
-use std::collections::HashMap;
 use std::sync::Arc;
 
 const T: TableName = TableName::LabResults;
@@ -44,9 +43,11 @@ pub struct LabRows {
     collected_at: TimestampMicrosecondBuilder,
     resulted_at: TimestampMicrosecondBuilder,
     hemolysis_index: Float64Builder,
-    loinc_cache: HashMap<String, LoincInfo>,
-    /// Conversion factor per analyte by unit as written; None = unit not accepted.
-    unit_cache: HashMap<Analyte, HashMap<String, Option<f64>>>,
+    /// Meaning of each LOINC code seen so far (an extract uses a few dozen at most, so a short
+    /// list scanned in order beats hashing).
+    loinc_cache: Vec<(String, LoincInfo)>,
+    /// Conversion factor per (analyte, unit as written); None = unit not accepted.
+    unit_cache: Vec<(Analyte, String, Option<f64>)>,
 }
 
 impl Default for LabRows {
@@ -65,15 +66,15 @@ impl Default for LabRows {
             collected_at: instant_builder(),
             resulted_at: instant_builder(),
             hemolysis_index: Float64Builder::new(),
-            loinc_cache: HashMap::new(),
-            unit_cache: HashMap::new(),
+            loinc_cache: Vec::new(),
+            unit_cache: Vec::new(),
         }
     }
 }
 
 impl LabRows {
     fn loinc_info(&mut self, code: &str) -> LoincInfo {
-        if let Some(info) = self.loinc_cache.get(code) {
+        if let Some((_, info)) = self.loinc_cache.iter().find(|(c, _)| c == code) {
             return *info;
         }
         let info = if !is_valid_loinc(code) {
@@ -81,17 +82,16 @@ impl LabRows {
         } else {
             Analyte::from_loinc(code).map_or(LoincInfo::Unlisted, LoincInfo::Listed)
         };
-        self.loinc_cache.insert(code.to_string(), info);
+        self.loinc_cache.push((code.to_string(), info));
         info
     }
 
     fn factor(&mut self, analyte: Analyte, unit: &str) -> Option<f64> {
-        let units = self.unit_cache.entry(analyte).or_default();
-        if let Some(f) = units.get(unit) {
+        if let Some((_, _, f)) = self.unit_cache.iter().find(|(a, u, _)| *a == analyte && u == unit) {
             return *f;
         }
         let f = analyte.conversion_for(unit).map(|c| c.factor);
-        units.insert(unit.to_string(), f);
+        self.unit_cache.push((analyte, unit.to_string(), f));
         f
     }
 }

@@ -104,16 +104,13 @@ mod tests {
         encounters.insert_hash(IdSet::hash("E1"));
         IngestContext {
             clock: SiteClock::new(SiteZone::parse("Europe/Berlin").unwrap()),
-            extract_end: Some(
-                chrono::DateTime::parse_from_rfc3339("2026-06-30T22:00:00Z")
-                    .unwrap()
-                    .timestamp_micros(),
-            ),
+            extract_end: chrono::DateTime::parse_from_rfc3339("2026-06-30T22:00:00Z")
+                .unwrap()
+                .timestamp_micros(),
             extract_year: 2026,
             patients,
             encounters,
             ambiguous_local_times: 0,
-            latest_time: None,
         }
     }
 

@@ -5,13 +5,15 @@ use super::InputArgs;
 use super::report::{Report, TextTable, amount, num, per_label, to_json};
 use anyhow::{Context, bail};
 use clap::{Args, ValueEnum};
-use kcohort_stats::control_chart::{CentreLine, ChartKind, ChartOptions, RULE_SET, p_chart, u_chart};
+use kcohort_stats::control_chart::{
+    CentreLine, ChartKind, ChartOptions, RULE_SET, p_chart, u_chart,
+};
 use serde_json::json;
 use std::collections::HashMap;
 
 #[derive(Debug, Args)]
 #[command(
-    long_about = "Shewhart control chart of one indicator over time, with the run rules of Provost & \
+    after_long_help = "Shewhart control chart of one indicator over time, with the run rules of Provost & \
 Murray (The Health Care Data Guide, 2011), rules 1-4. One row per period, in time order as in the \
 file; a period named twice is an error. p-chart: --count cases of --exposure people (whole numbers). \
 u-chart: --count events over --exposure person-time, charted per --per units."
@@ -91,7 +93,11 @@ pub fn run(args: &ControlChartArgs) -> anyhow::Result<Report> {
                 bail!("--per applies to u-charts (rates); a p-chart charts proportions");
             }
             let totals = table.counts(&args.exposure)?;
-            (p_chart(&counts, &totals, &options), "proportion".to_string(), None)
+            (
+                p_chart(&counts, &totals, &options),
+                "proportion".to_string(),
+                None,
+            )
         }
         Kind::U => {
             let per = args.per.unwrap_or(1000.0);
@@ -103,7 +109,11 @@ pub fn run(args: &ControlChartArgs) -> anyhow::Result<Report> {
                 .into_iter()
                 .map(|e| e / per)
                 .collect();
-            (u_chart(&counts, &exposure, &options), per_label(per), Some(per))
+            (
+                u_chart(&counts, &exposure, &options),
+                per_label(per),
+                Some(per),
+            )
         }
     };
     let chart = chart.context("control chart")?;
@@ -117,9 +127,15 @@ pub fn run(args: &ControlChartArgs) -> anyhow::Result<Report> {
         "Control chart: {kind_words}, {}σ limits, run rules of {RULE_SET}\n\n",
         amount(chart.sigma_multiplier)
     );
-    text.push_str(&format!("centre line: {} ({})\n", num(chart.centre), value_label));
+    text.push_str(&format!(
+        "centre line: {} ({})\n",
+        num(chart.centre),
+        value_label
+    ));
     if let Some(n) = args.baseline {
-        text.push_str(&format!("centre line from the first {n} periods (baseline)\n"));
+        text.push_str(&format!(
+            "centre line from the first {n} periods (baseline)\n"
+        ));
     }
     if let Some(sigma_z) = chart.sigma_z {
         text.push_str(&format!("Laney sigma_z: {}\n", num(sigma_z)));
@@ -139,7 +155,11 @@ pub fn run(args: &ControlChartArgs) -> anyhow::Result<Report> {
     ]);
     let mut explanations = Vec::new();
     for (point, name) in chart.points.iter().zip(&periods) {
-        let rules: Vec<String> = point.signals.iter().map(|s| s.rule_number.to_string()).collect();
+        let rules: Vec<String> = point
+            .signals
+            .iter()
+            .map(|s| s.rule_number.to_string())
+            .collect();
         for signal in &point.signals {
             explanations.push(format!(
                 "{} {name}: rule {}: {}",
@@ -157,7 +177,11 @@ pub fn run(args: &ControlChartArgs) -> anyhow::Result<Report> {
             num(point.value),
             num(point.lower),
             num(point.upper),
-            if rules.is_empty() { "-".to_string() } else { rules.join(",") },
+            if rules.is_empty() {
+                "-".to_string()
+            } else {
+                rules.join(",")
+            },
         ]);
     }
     text.push_str(&points.render());
@@ -189,5 +213,11 @@ pub fn run(args: &ControlChartArgs) -> anyhow::Result<Report> {
         "baseline_periods": args.baseline,
         "sigma": args.sigma,
     });
-    Ok(Report::new("control-chart", &table, settings, results, text))
+    Ok(Report::new(
+        "control-chart",
+        &table,
+        settings,
+        results,
+        text,
+    ))
 }

@@ -12,7 +12,7 @@ use serde_json::json;
 
 #[derive(Debug, Args)]
 #[command(
-    long_about = "Cox proportional-hazards regression, as R's coxph: Efron ties by default, one baseline \
+    after_long_help = "Cox proportional-hazards regression, as R's coxph: Efron ties by default, one baseline \
 hazard per --strata level, rows as (entry, time] intervals with --entry (late entry, time-varying \
 covariates), and with --cluster the robust (sandwich) variance, whose standard errors are then used \
 for z, p-values and intervals. Covariates are numeric columns; a column also named in --categorical \
@@ -38,10 +38,11 @@ pub struct CoxArgs {
     /// Column with a cluster id (e.g. patient) for the robust variance.
     #[arg(long, value_name = "COL")]
     pub cluster: Option<String>,
-    /// Covariates to one-hot encode against their first level (each must also be a COVARIATE).
+    /// Covariates to one-hot encode against their first level, e.g. a text column `ward`: one
+    /// covariate `ward=level` per other level (each must also be listed as a COVARIATE).
     #[arg(long, value_name = "COL", value_delimiter = ',')]
     pub categorical: Vec<String>,
-    /// Covariate columns.
+    /// Covariate columns: numbers, or any values for a column named in --categorical.
     #[arg(value_name = "COVARIATE", required = true)]
     pub covariates: Vec<String>,
     #[command(flatten)]
@@ -81,7 +82,9 @@ pub fn run(args: &CoxArgs) -> anyhow::Result<Report> {
         if args.categorical.contains(covariate) {
             let grouping = Grouping::new(&table.labels(covariate)?);
             if grouping.levels.len() < 2 {
-                bail!("categorical covariate `{covariate}` has a single level; it carries no information");
+                bail!(
+                    "categorical covariate `{covariate}` has a single level; it carries no information"
+                );
             }
             for (level_index, level_name) in grouping.levels.iter().enumerate().skip(1) {
                 names.push(format!("{covariate}={level_name}"));
@@ -166,10 +169,15 @@ pub fn run(args: &CoxArgs) -> anyhow::Result<Report> {
             .map_or(String::new(), |c| format!(", robust variance by `{c}`"))
     );
     text.push_str(&format!(
-        "{} rows, {} events, {} strata{}, {} iterations\n\n",
+        "{} rows, {} events, {} {}{}, {} iterations\n\n",
         fit.n_rows,
         fit.n_events,
         fit.n_strata,
+        if fit.n_strata == 1 {
+            "stratum"
+        } else {
+            "strata"
+        },
         fit.n_clusters
             .map_or(String::new(), |c| format!(", {c} clusters")),
         fit.iterations
@@ -207,7 +215,7 @@ pub fn run(args: &CoxArgs) -> anyhow::Result<Report> {
     };
     add("likelihood ratio", &fit.likelihood_ratio);
     add("Wald", &fit.wald);
-    add("score (log-rank)", &fit.score);
+    add("score", &fit.score);
     if let Some(test) = &fit.robust_wald {
         add("robust Wald", test);
     }

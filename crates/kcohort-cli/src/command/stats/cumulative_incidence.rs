@@ -4,6 +4,7 @@
 use super::InputArgs;
 use super::follow_up::competing_follow_up;
 use super::grouping::Grouping;
+use super::report::Format;
 use super::report::{Report, TextTable, ci_label, num, p_value, time as show_time, to_json};
 use anyhow::Context;
 use clap::Args;
@@ -13,7 +14,7 @@ use serde_json::json;
 
 #[derive(Debug, Args)]
 #[command(
-    long_about = "Cumulative incidence of competing events (Aalen–Johansen) with delta-method standard \
+    after_long_help = "Cumulative incidence of competing events (Aalen–Johansen) with delta-method standard \
 errors and log(−log) intervals, one row per subject. The event column holds 0 for censored and 1, 2, \
 ... for the event types. With --group, one set of curves per group and Gray's test for each event type. \
 The text output lists the times with an event; the JSON output has every step."
@@ -50,10 +51,11 @@ pub fn run(args: &CumulativeIncidenceArgs) -> anyhow::Result<Report> {
     let mut curves = Vec::new();
     for (name, rows) in grouping.levels.iter().zip(grouping.rows()) {
         let rows_data: Vec<CompetingFollowUp> = rows.iter().map(|&r| data[r]).collect();
-        let curve = aalen_johansen::estimate(&rows_data, level).with_context(|| match &args.group {
-            Some(_) => format!("cumulative incidence of group `{name}`"),
-            None => "cumulative incidence".to_string(),
-        })?;
+        let curve =
+            aalen_johansen::estimate(&rows_data, level).with_context(|| match &args.group {
+                Some(_) => format!("cumulative incidence of group `{name}`"),
+                None => "cumulative incidence".to_string(),
+            })?;
         let mut header = vec![
             "time".to_string(),
             "at risk".to_string(),
@@ -66,7 +68,11 @@ pub fn run(args: &CumulativeIncidenceArgs) -> anyhow::Result<Report> {
         }
         let header: Vec<&str> = header.iter().map(String::as_str).collect();
         let mut steps = TextTable::new(&header);
-        for step in curve.steps.iter().filter(|s| s.n_events.iter().any(|&d| d > 0)) {
+        for step in curve
+            .steps
+            .iter()
+            .filter(|s| s.n_events.iter().any(|&d| d > 0))
+        {
             let mut row = vec![
                 show_time(step.time),
                 step.n_at_risk.to_string(),
@@ -82,7 +88,11 @@ pub fn run(args: &CumulativeIncidenceArgs) -> anyhow::Result<Report> {
             }
             steps.row(row);
         }
-        let label = if args.group.is_some() { name.clone() } else { "all".to_string() };
+        let label = if args.group.is_some() {
+            name.clone()
+        } else {
+            "all".to_string()
+        };
         text.push_str(&format!(
             "\n{label}: {} subjects, event types {}\n",
             curve.n_rows,
@@ -94,10 +104,13 @@ pub fn run(args: &CumulativeIncidenceArgs) -> anyhow::Result<Report> {
                 .join(", ")
         ));
         text.push_str(&steps.render());
-        curves.push(json!({
-            "group": args.group.as_ref().map(|_| name),
-            "aalen_johansen": to_json(&curve),
-        }));
+        // Every step of a large curve makes a large JSON tree: build it only when it is printed.
+        if args.input.format == Format::Json {
+            curves.push(json!({
+                "group": args.group.as_ref().map(|_| name),
+                "aalen_johansen": to_json(&curve),
+            }));
+        }
     }
     let mut gray = Vec::new();
     if args.group.is_some() && grouping.levels.len() >= 2 {

@@ -14,7 +14,7 @@ use std::collections::HashMap;
 
 #[derive(Debug, Args)]
 #[command(
-    long_about = "Funnel-plot limits (Spiegelhalter, Stat Med 2005;24:1185) for comparing units such as \
+    after_long_help = "Funnel-plot limits (Spiegelhalter, Stat Med 2005;24:1185) for comparing units such as \
 wards or hospitals with a target, one row per unit. proportion: --count cases of --exposure people; \
 rate: --count events over --exposure person-time, per --per units; ratio: --count observed over \
 --exposure expected (e.g. standardised mortality ratios, target 1). Inner limits at --level (0.95), \
@@ -80,7 +80,9 @@ pub fn run(args: &FunnelArgs) -> anyhow::Result<Report> {
             inner.value()
         );
     }
-    let table = args.input.read(&[&args.unit, &args.count, &args.exposure])?;
+    let table = args
+        .input
+        .read(&[&args.unit, &args.count, &args.exposure])?;
     let units = table.labels(&args.unit)?;
     let mut first_row: HashMap<&str, usize> = HashMap::new();
     for (row, unit) in units.iter().enumerate() {

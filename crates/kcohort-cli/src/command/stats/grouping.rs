@@ -50,10 +50,7 @@ impl Grouping {
     }
 
     /// Sums `values` over the rows of each level.
-    pub fn sum<T: Copy + Default + std::ops::AddAssign>(
-        &self,
-        values: &[T],
-    ) -> Vec<T> {
+    pub fn sum<T: Copy + Default + std::ops::AddAssign>(&self, values: &[T]) -> Vec<T> {
         let mut sums = vec![T::default(); self.levels.len()];
         for (&level, &value) in self.of_row.iter().zip(values) {
             sums[level] += value;

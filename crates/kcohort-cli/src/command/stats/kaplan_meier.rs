@@ -4,7 +4,10 @@
 use super::InputArgs;
 use super::follow_up::follow_up;
 use super::grouping::Grouping;
-use super::report::{Report, TextTable, amount, ci_label, num, p_value, time as show_time, to_json};
+use super::report::Format;
+use super::report::{
+    Report, TextTable, amount, ci_label, num, p_value, time as show_time, to_json,
+};
 use anyhow::Context;
 use clap::Args;
 use kcohort_stats::Interval;
@@ -15,7 +18,7 @@ use serde_json::json;
 
 #[derive(Debug, Args)]
 #[command(
-    long_about = "Kaplan–Meier survival with Greenwood standard errors and pointwise intervals on the log \
+    after_long_help = "Kaplan–Meier survival with Greenwood standard errors and pointwise intervals on the log \
 scale (R survfit's default) and the log(−log) scale, the median with its Brookmeyer–Crowley interval, \
 and with --group the log-rank test. One row per subject (or per (entry, time] interval with --entry). \
 The text output lists the event times, or with --at the chosen times; the JSON output has every step."
@@ -87,11 +90,16 @@ pub fn run(args: &KaplanMeierArgs) -> anyhow::Result<Report> {
     let mut tables = String::new();
     for (name, rows) in grouping.levels.iter().zip(grouping.rows()) {
         let rows_data: Vec<FollowUp> = rows.iter().map(|&r| data[r]).collect();
-        let curve = kaplan_meier::estimate(&rows_data, &options).with_context(|| match &args.group {
-            Some(_) => format!("Kaplan–Meier curve of group `{name}`"),
-            None => "Kaplan–Meier curve".to_string(),
-        })?;
-        let label = if args.group.is_some() { name.clone() } else { "all".to_string() };
+        let curve =
+            kaplan_meier::estimate(&rows_data, &options).with_context(|| match &args.group {
+                Some(_) => format!("Kaplan–Meier curve of group `{name}`"),
+                None => "Kaplan–Meier curve".to_string(),
+            })?;
+        let label = if args.group.is_some() {
+            name.clone()
+        } else {
+            "all".to_string()
+        };
         let m = &curve.median;
         medians.row(vec![
             label.clone(),
@@ -99,7 +107,11 @@ pub fn run(args: &KaplanMeierArgs) -> anyhow::Result<Report> {
             curve.n_events.to_string(),
             time_text(m.median),
             format!("{} to {}", time_text(m.log_lower), time_text(m.log_upper)),
-            format!("{} to {}", time_text(m.log_log_lower), time_text(m.log_log_upper)),
+            format!(
+                "{} to {}",
+                time_text(m.log_log_lower),
+                time_text(m.log_log_upper)
+            ),
         ]);
         let mut steps = TextTable::new(&[
             "time",
@@ -137,10 +149,13 @@ pub fn run(args: &KaplanMeierArgs) -> anyhow::Result<Report> {
         }
         tables.push_str(&format!("\n{label}\n"));
         tables.push_str(&steps.render());
-        curves.push(json!({
-            "group": args.group.as_ref().map(|_| name),
-            "kaplan_meier": to_json(&curve),
-        }));
+        // Every step of a large curve makes a large JSON tree: build it only when it is printed.
+        if args.input.format == Format::Json {
+            curves.push(json!({
+                "group": args.group.as_ref().map(|_| name),
+                "kaplan_meier": to_json(&curve),
+            }));
+        }
     }
     text.push_str(&medians.render());
     text.push_str(&tables);

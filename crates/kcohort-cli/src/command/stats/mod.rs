@@ -29,11 +29,10 @@ use table_input::Table;
 
 #[derive(Debug, Args)]
 #[command(
-    after_long_help = "Statistics on any table of your own: proportions, rates, ratios, control charts, \
-funnel plots, standardised rates, Kaplan–Meier survival, cumulative incidence and Cox regression. Each subcommand reads the columns you name from one CSV file \
-(header row, UTF-8) or Parquet file and prints estimates with confidence intervals and tests, as a \
-text table or as JSON (--format json). A missing value (empty cell, NA, or Parquet null) in a used \
-column is an error naming its line, unless --drop-missing is given."
+    after_long_help = "Each subcommand reads the columns you name from one CSV file (header row, \
+UTF-8) or Parquet file and prints estimates with confidence intervals and tests, as a text table or as \
+JSON (--format json). A missing value (empty cell, NA, or Parquet null) in a used column is an error \
+naming its line, unless --drop-missing is given."
 )]
 pub struct StatsArgs {
     #[command(subcommand)]
@@ -109,6 +108,10 @@ pub fn run(args: StatsArgs) -> anyhow::Result<()> {
     if let Some(note) = &report.note {
         eprintln!("{note}");
     }
-    print!("{}", report.render(format));
-    Ok(())
+    let mut stdout = std::io::BufWriter::new(std::io::stdout().lock());
+    match report.write(format, &mut stdout) {
+        // A reader that stops early (`| head`) has all it wanted.
+        Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Ok(()),
+        other => other.context("cannot write the output to stdout"),
+    }
 }

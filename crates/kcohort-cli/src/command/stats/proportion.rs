@@ -76,14 +76,17 @@ pub fn run(args: &ProportionArgs) -> anyhow::Result<Report> {
         &ci_label(level.value()),
     ]);
     for (i, name) in grouping.levels.iter().enumerate() {
-        let p = proportion(cases[i], totals[i], method, level).with_context(|| {
-            match &args.group {
+        let p =
+            proportion(cases[i], totals[i], method, level).with_context(|| match &args.group {
                 Some(_) => format!("proportion of group `{name}`"),
                 None => "proportion".to_string(),
-            }
-        })?;
+            })?;
         text_table.row(vec![
-            if args.group.is_some() { name.clone() } else { "all".to_string() },
+            if args.group.is_some() {
+                name.clone()
+            } else {
+                "all".to_string()
+            },
             cases[i].to_string(),
             totals[i].to_string(),
             num(p.estimate),

@@ -69,7 +69,7 @@ pub(super) fn rates(
                 if grouped {
                     format!("rate of group `{name}`")
                 } else {
-                    "rate".to_string()
+                    "rate over all rows".to_string()
                 }
             })
         })
@@ -102,7 +102,12 @@ pub fn run(args: &RateArgs) -> anyhow::Result<Report> {
     let mut columns = vec![args.events.as_str(), args.person_time.as_str()];
     columns.extend(args.group.as_deref());
     let table = args.input.read(&columns)?;
-    let counts = grouped_counts(&table, &args.events, &args.person_time, args.group.as_deref())?;
+    let counts = grouped_counts(
+        &table,
+        &args.events,
+        &args.person_time,
+        args.group.as_deref(),
+    )?;
     let rates = rates(&counts, args.per, level, args.group.is_some())?;
     let names: Vec<String> = match &args.group {
         Some(_) => counts.grouping.levels.clone(),

@@ -6,9 +6,7 @@ use super::rate::{grouped_counts, rate_table, rates};
 use super::report::{Outcome, Report, TextTable, amount, ci_label, interval, num, to_json};
 use anyhow::{Context, bail};
 use clap::Args;
-use kcohort_stats::rate_ratio::{
-    PersonTimeCounts, RateRatioMethod, rate_difference, rate_ratio,
-};
+use kcohort_stats::rate_ratio::{PersonTimeCounts, RateRatioMethod, rate_difference, rate_ratio};
 use serde_json::json;
 
 #[derive(Debug, Args)]
@@ -46,7 +44,11 @@ pub fn run(args: &RateRatioArgs) -> anyhow::Result<Report> {
             None => bail!(
                 "--reference {value}: column `{}` has no group `{value}`\nhint: the groups found are {}",
                 args.group,
-                levels.iter().map(|l| format!("`{l}`")).collect::<Vec<_>>().join(", ")
+                levels
+                    .iter()
+                    .map(|l| format!("`{l}`"))
+                    .collect::<Vec<_>>()
+                    .join(", ")
             ),
         },
         None => 0,
@@ -62,6 +64,7 @@ pub fn run(args: &RateRatioArgs) -> anyhow::Result<Report> {
     let reference_name = &levels[reference];
     let ci = ci_label(level.value());
     let mut comparisons = Vec::new();
+    let mut notes: Vec<String> = Vec::new();
     let mut text_table = TextTable::new(&[
         "group vs reference",
         "rate ratio",
@@ -74,7 +77,7 @@ pub fn run(args: &RateRatioArgs) -> anyhow::Result<Report> {
         if i == reference {
             continue;
         }
-        let pair = PersonTimeCounts::new(
+        let estimates = PersonTimeCounts::new(
             counts.events[i],
             counts.person_time[i],
             counts.events[reference],
@@ -82,34 +85,40 @@ pub fn run(args: &RateRatioArgs) -> anyhow::Result<Report> {
         )
         .and_then(|pair| {
             Ok((
-                pair,
                 Outcome::from_result(rate_ratio(&pair, RateRatioMethod::WaldLog, level))?,
                 Outcome::from_result(rate_ratio(&pair, RateRatioMethod::ExactConditional, level))?,
                 Outcome::from_result(rate_difference(&pair, args.per, level))?,
             ))
         })
         .with_context(|| format!("group `{name}` vs reference `{reference_name}`"))?;
-        let (_, wald, exact, difference) = pair;
-        let estimate = wald
-            .estimated()
-            .map(|r| r.estimate)
-            .or(exact.estimated().map(|r| r.estimate));
-        let not_estimable = "not estimable".to_string();
+        let (wald, exact, difference) = estimates;
+        // The Wald estimate needs events in both groups; the exact one is also defined with one zero.
+        let estimate = wald.estimated().or(exact.estimated()).map(|r| r.estimate);
+        let missing = || "not estimable".to_string();
         text_table.row(vec![
             format!("{name} vs {reference_name}"),
-            estimate.map_or(not_estimable.clone(), num),
+            estimate.map_or_else(missing, num),
             wald.estimated()
-                .map_or(not_estimable.clone(), |r| interval(&r.interval)),
+                .map_or_else(missing, |r| interval(&r.interval)),
             exact
                 .estimated()
-                .map_or(not_estimable.clone(), |r| interval(&r.interval)),
+                .map_or_else(missing, |r| interval(&r.interval)),
             difference
                 .estimated()
-                .map_or(not_estimable.clone(), |r| num(r.estimate)),
+                .map_or_else(missing, |r| num(r.estimate)),
             difference
                 .estimated()
-                .map_or(not_estimable, |r| interval(&r.interval)),
+                .map_or_else(missing, |r| interval(&r.interval)),
         ]);
+        for reason in [wald.reason(), exact.reason(), difference.reason()]
+            .into_iter()
+            .flatten()
+        {
+            let note = format!("{name} vs {reference_name}: {reason}");
+            if !notes.contains(&note) {
+                notes.push(note);
+            }
+        }
         comparisons.push(json!({
             "group": name,
             "reference": reference_name,
@@ -125,16 +134,6 @@ pub fn run(args: &RateRatioArgs) -> anyhow::Result<Report> {
     text.push_str(&rate_table(levels, &rates, args.per, level.value()));
     text.push('\n');
     text.push_str(&text_table.render());
-    let notes: Vec<String> = comparisons
-        .iter()
-        .flat_map(|c| {
-            ["rate_ratio_wald_log", "rate_ratio_exact_conditional", "rate_difference"]
-                .into_iter()
-                .filter_map(|key| c[key]["not_estimable"].as_str())
-                .map(|reason| format!("not estimable ({} vs {}): {reason}", c["group"].as_str().unwrap_or(""), reference_name))
-                .collect::<Vec<_>>()
-        })
-        .collect();
     if !notes.is_empty() {
         text.push('\n');
         for note in notes {

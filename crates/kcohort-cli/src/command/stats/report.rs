@@ -5,7 +5,8 @@ use super::table_input::{InputSummary, Table};
 use clap::ValueEnum;
 use kcohort_stats::{Interval, StatsError};
 use serde::Serialize;
-use serde_json::{Map, Value, json};
+use serde_json::{Map, Value};
+use std::io::Write;
 
 /// Output format.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
@@ -32,13 +33,23 @@ pub struct Report {
 impl Report {
     /// The report of `command` on `table`; `text` is the text table, without the input line,
     /// which is added here.
-    pub fn new(command: &'static str, table: &Table, settings: Value, results: Value, text: String) -> Self {
+    pub fn new(
+        command: &'static str,
+        table: &Table,
+        settings: Value,
+        results: Value,
+        text: String,
+    ) -> Self {
         let input = table.summary();
-        let mut heading = format!("input: {} ({} rows", input.file, input.rows_used);
+        let mut heading = format!(
+            "input: {} ({} rows",
+            input.file,
+            amount(input.rows_used as f64)
+        );
         if input.rows_dropped_missing > 0 {
             heading.push_str(&format!(
                 "; {} more left out for missing values",
-                input.rows_dropped_missing
+                amount(input.rows_dropped_missing as f64)
             ));
         }
         heading.push_str(")\n");
@@ -52,9 +63,10 @@ impl Report {
         }
     }
 
-    pub fn render(&self, format: Format) -> String {
+    /// Writes the report in `format`; JSON is streamed, as a large curve makes a large document.
+    pub fn write(&self, format: Format, out: &mut impl Write) -> std::io::Result<()> {
         match format {
-            Format::Table => self.text.clone(),
+            Format::Table => out.write_all(self.text.as_bytes())?,
             Format::Json => {
                 let mut input = match serde_json::to_value(&self.input) {
                     Ok(Value::Object(map)) => map,
@@ -63,17 +75,22 @@ impl Report {
                 if let Value::Object(settings) = &self.settings {
                     input.extend(settings.clone());
                 }
-                let document = json!({
-                    "command": self.command,
-                    "input": input,
-                    "results": self.results,
-                });
-                let mut text = serde_json::to_string_pretty(&document)
-                    .expect("serde_json writes any Value");
-                text.push('\n');
-                text
+                #[derive(Serialize)]
+                struct Document<'a> {
+                    command: &'a str,
+                    input: Map<String, Value>,
+                    results: &'a Value,
+                }
+                let document = Document {
+                    command: self.command,
+                    input,
+                    results: &self.results,
+                };
+                serde_json::to_writer_pretty(&mut *out, &document).map_err(std::io::Error::from)?;
+                out.write_all(b"\n")?;
             }
         }
+        out.flush()
     }
 }
 
@@ -95,6 +112,14 @@ impl<T> Outcome<T> {
                 not_estimable: reason.lines().next().unwrap_or_default().to_string(),
             }),
             Err(other) => Err(other),
+        }
+    }
+
+    /// Why the estimate is missing, if it is.
+    pub fn reason(&self) -> Option<&str> {
+        match self {
+            Outcome::Estimated(_) => None,
+            Outcome::NotEstimable { not_estimable } => Some(not_estimable),
         }
     }
 
@@ -182,7 +207,11 @@ pub fn num(x: f64) -> String {
 
 /// A time as the input wrote it (shortest form that reads back the same number: 9, 0.5, 365.25).
 pub fn time(x: f64) -> String {
-    if x.is_finite() { format!("{x}") } else { num(x) }
+    if x.is_finite() {
+        format!("{x}")
+    } else {
+        num(x)
+    }
 }
 
 /// An amount such as person-time: up to 2 decimals, thousands separated (51,477.5).

@@ -10,8 +10,8 @@ use clap::{Args, ValueEnum};
 use kcohort_stats::mantel_haenszel::{self, HomogeneityMethod, PooledRatio};
 use kcohort_stats::proportion::{ProportionMethod, proportion};
 use kcohort_stats::risk_ratio::{
-    RatioEstimate, RiskDifference, RiskDifferenceMethod, TwoByTwo, ZeroCellCorrection,
-    odds_ratio, risk_difference, risk_ratio,
+    RatioEstimate, RiskDifference, RiskDifferenceMethod, TwoByTwo, ZeroCellCorrection, odds_ratio,
+    risk_difference, risk_ratio,
 };
 use kcohort_stats::{ConfidenceLevel, StatsError};
 use serde::Serialize;
@@ -62,8 +62,8 @@ fn estimates(
     level: ConfidenceLevel,
 ) -> Result<TableEstimates, StatsError> {
     let lacking = match (table.exposed_total, table.unexposed_total) {
-        (0, _) => Some("no exposed subjects"),
-        (_, 0) => Some("no unexposed subjects"),
+        (0, _) => Some("no exposed subjects, so no ratio or difference"),
+        (_, 0) => Some("no unexposed subjects, so no ratio or difference"),
         _ => None,
     };
     if let Some(reason) = lacking {
@@ -140,13 +140,27 @@ pub fn run(args: &RiskRatioArgs) -> anyhow::Result<Report> {
         bail!(
             "column `{}` has only {} subjects; a risk ratio compares exposed (1) with unexposed (0)",
             args.exposure,
-            if crude.exposed_total == 0 { "unexposed (0)" } else { "exposed (1)" }
+            if crude.exposed_total == 0 {
+                "unexposed (0)"
+            } else {
+                "exposed (1)"
+            }
         );
     }
     let crude_estimates = estimates(&crude, zero_cells, level).context("crude estimates")?;
     let risks = [
-        proportion(crude.exposed_cases, crude.exposed_total, ProportionMethod::Wilson, level)?,
-        proportion(crude.unexposed_cases, crude.unexposed_total, ProportionMethod::Wilson, level)?,
+        proportion(
+            crude.exposed_cases,
+            crude.exposed_total,
+            ProportionMethod::Wilson,
+            level,
+        )?,
+        proportion(
+            crude.unexposed_cases,
+            crude.unexposed_total,
+            ProportionMethod::Wilson,
+            level,
+        )?,
     ];
     let ci = ci_label(level.value());
 
@@ -154,7 +168,8 @@ pub fn run(args: &RiskRatioArgs) -> anyhow::Result<Report> {
         "Risk ratio, risk difference and odds ratio: exposure `{}`, outcome `{}`\n\n",
         args.exposure, args.outcome
     );
-    let mut risk_table = TextTable::new(&["group", "cases", "total", "risk", &format!("{ci} (Wilson)")]);
+    let mut risk_table =
+        TextTable::new(&["group", "cases", "total", "risk", &format!("{ci} (Wilson)")]);
     for (name, risk) in ["exposed", "unexposed"].iter().zip(&risks) {
         risk_table.row(vec![
             name.to_string(),
@@ -170,25 +185,28 @@ pub fn run(args: &RiskRatioArgs) -> anyhow::Result<Report> {
     let ratio = |r: &RatioEstimate| (r.estimate, interval(&r.interval));
     let difference = |r: &RiskDifference| (r.estimate, interval(&r.interval));
     for (name, cells) in [
-        ("risk ratio (Katz log)", ratio_cells(&crude_estimates.risk_ratio, ratio)),
-        ("risk difference (Wald)", ratio_cells(&crude_estimates.risk_difference_wald, difference)),
+        (
+            "risk ratio (Katz log)",
+            ratio_cells(&crude_estimates.risk_ratio, ratio),
+        ),
+        (
+            "risk difference (Wald)",
+            ratio_cells(&crude_estimates.risk_difference_wald, difference),
+        ),
         (
             "risk difference (Newcombe hybrid score)",
             ratio_cells(&crude_estimates.risk_difference_newcombe, difference),
         ),
-        ("odds ratio (Woolf logit)", ratio_cells(&crude_estimates.odds_ratio, ratio)),
+        (
+            "odds ratio (Woolf logit)",
+            ratio_cells(&crude_estimates.odds_ratio, ratio),
+        ),
     ] {
         let [estimate, interval] = cells;
         measures.row(vec![name.to_string(), estimate, interval]);
     }
     text.push_str(&measures.render());
     let mut notes = not_estimable_notes("crude", &crude_estimates);
-    let corrected = [&crude_estimates.risk_ratio, &crude_estimates.odds_ratio]
-        .iter()
-        .any(|r| r.estimated().is_some_and(|r| r.zero_cell_corrected));
-    if corrected {
-        notes.push("crude ratios: 0.5 added to every cell (Haldane), as --zero-cells haldane asks".to_string());
-    }
 
     let mut stratified = serde_json::Value::Null;
     if let Some(strata_column) = &args.strata {
@@ -227,7 +245,7 @@ pub fn run(args: &RiskRatioArgs) -> anyhow::Result<Report> {
                 rd,
                 rd_ci,
             ]);
-            notes.extend(not_estimable_notes(&format!("stratum {name}"), &e));
+            notes.extend(not_estimable_notes(&format!("stratum `{name}`"), &e));
             per_stratum.push(json!({ "stratum": name, "estimates": to_json(&e) }));
         }
         let pooled_rr = Outcome::from_result(mantel_haenszel::risk_ratio(&tables, level))
@@ -259,6 +277,12 @@ pub fn run(args: &RiskRatioArgs) -> anyhow::Result<Report> {
             "mantel_haenszel_odds_ratio": to_json(&pooled_or),
             "strata": per_stratum,
         });
+    }
+    if zero_cells == ZeroCellCorrection::None && notes.iter().any(|n| n.contains("cell is 0")) {
+        notes.push(
+            "hint: --zero-cells haldane adds 0.5 to every cell of a table with a zero cell"
+                .to_string(),
+        );
     }
     if !notes.is_empty() {
         text.push('\n');
@@ -326,25 +350,28 @@ fn pooled_row(name: &str, pooled: &Outcome<PooledRatio>) -> Vec<String> {
     ]
 }
 
+/// One line per distinct reason an estimate of `e` is missing, and one when 0.5 was added to cells.
 fn not_estimable_notes(place: &str, e: &TableEstimates) -> Vec<String> {
-    [
-        ("risk ratio", e.risk_ratio.estimated().is_none(), not_estimable_reason(&e.risk_ratio)),
-        ("odds ratio", e.odds_ratio.estimated().is_none(), not_estimable_reason(&e.odds_ratio)),
-        (
-            "risk difference",
-            e.risk_difference_newcombe.estimated().is_none(),
-            not_estimable_reason(&e.risk_difference_newcombe),
-        ),
-    ]
-    .into_iter()
-    .filter(|(_, missing, _)| *missing)
-    .map(|(name, _, reason)| format!("{place} {name} not estimable: {reason}"))
-    .collect()
-}
-
-fn not_estimable_reason<T>(outcome: &Outcome<T>) -> String {
-    match outcome {
-        Outcome::NotEstimable { not_estimable } => not_estimable.clone(),
-        Outcome::Estimated(_) => String::new(),
+    let mut notes: Vec<String> = Vec::new();
+    let reasons = [
+        e.risk_ratio.reason(),
+        e.odds_ratio.reason(),
+        e.risk_difference_wald.reason(),
+        e.risk_difference_newcombe.reason(),
+    ];
+    for reason in reasons.into_iter().flatten() {
+        let note = format!("{place}: {reason}");
+        if !notes.contains(&note) {
+            notes.push(note);
+        }
     }
+    let corrected = [&e.risk_ratio, &e.odds_ratio]
+        .iter()
+        .any(|r| r.estimated().is_some_and(|r| r.zero_cell_corrected));
+    if corrected {
+        notes.push(format!(
+            "{place}: 0.5 added to every cell for the risk and odds ratio (--zero-cells haldane)"
+        ));
+    }
+    notes
 }

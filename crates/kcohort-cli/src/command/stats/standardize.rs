@@ -11,7 +11,7 @@ use serde_json::json;
 
 #[derive(Debug, Args)]
 #[command(
-    long_about = "Directly standardised rate: one row per stratum (e.g. age band), with its events, \
+    after_long_help = "Directly standardised rate: one row per stratum (e.g. age band), with its events, \
 its person-time or population at risk, and the standard population's weight for that stratum (any \
 scale; weights are normalised). With --group, each group's rows are standardised separately."
 )]
@@ -94,7 +94,11 @@ pub fn run(args: &StandardizeArgs) -> anyhow::Result<Report> {
             None => "standardised rate".to_string(),
         })?;
         rows.row(vec![
-            if args.group.is_some() { name.clone() } else { "all".to_string() },
+            if args.group.is_some() {
+                name.clone()
+            } else {
+                "all".to_string()
+            },
             group_rows.len().to_string(),
             rate.events.to_string(),
             amount(rate.person_time),
@@ -128,5 +132,11 @@ pub fn run(args: &StandardizeArgs) -> anyhow::Result<Report> {
         "per": args.per,
         "level": level.value(),
     });
-    Ok(Report::new("standardize", &table, settings, json!(results), text))
+    Ok(Report::new(
+        "standardize",
+        &table,
+        settings,
+        json!(results),
+        text,
+    ))
 }

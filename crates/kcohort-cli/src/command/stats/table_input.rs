@@ -8,8 +8,9 @@
 //! recorded and reported. No row is ever left out silently.
 
 use anyhow::{Context, anyhow, bail};
+use arrow_array::builder::LargeStringBuilder;
 use arrow_array::types::{ByteArrayType, Utf8Type};
-use arrow_array::{Array, StringArray};
+use arrow_array::{Array, LargeStringArray, StringArray};
 use serde::Serialize;
 use std::fs::File;
 use std::io::BufReader;
@@ -23,13 +24,14 @@ pub enum FileFormat {
     Parquet,
 }
 
-/// The used columns of a table, as text cells (None = missing), one entry per kept row.
+/// The used columns of a table as text (null = missing), one entry per kept row. Arrow string
+/// arrays keep a column in one buffer, so a table of millions of rows stays small.
 #[derive(Debug)]
 pub struct Table {
     file: String,
     format: FileFormat,
     names: Vec<String>,
-    cells: Vec<Vec<Option<String>>>,
+    cells: Vec<LargeStringArray>,
     /// CSV line number (the header is line 1) or 1-based Parquet row of each kept row.
     positions: Vec<u64>,
     rows_read: usize,
@@ -45,6 +47,9 @@ pub struct InputSummary {
     pub rows_used: usize,
     pub rows_dropped_missing: usize,
 }
+
+/// Text cells per requested column, and the line (or row) number of each row.
+type Cells = (Vec<LargeStringArray>, Vec<u64>);
 
 /// Reads the columns `wanted` of the CSV or Parquet file at `path`. With `drop_missing`, rows with a
 /// missing cell in any wanted column are left out and counted; otherwise they are kept and the
@@ -103,11 +108,7 @@ pub fn read(path: &Path, wanted: &[&str], drop_missing: bool) -> anyhow::Result<
     Ok(table)
 }
 
-fn read_csv(
-    path: &Path,
-    file: &str,
-    names: &[String],
-) -> anyhow::Result<(Vec<Vec<Option<String>>>, Vec<u64>)> {
+fn read_csv(path: &Path, file: &str, names: &[String]) -> anyhow::Result<Cells> {
     let handle = File::open(path).with_context(|| format!("cannot open {}", path.display()))?;
     let mut reader = csv::ReaderBuilder::new()
         .has_headers(true)
@@ -132,7 +133,8 @@ fn read_csv(
         bail!("{file} is empty: expected a header row naming the columns");
     }
     let indices = locate(file, &header_names, names)?;
-    let mut cells: Vec<Vec<Option<String>>> = vec![Vec::new(); names.len()];
+    let mut cells: Vec<LargeStringBuilder> =
+        names.iter().map(|_| LargeStringBuilder::new()).collect();
     let mut positions = Vec::new();
     let mut record = csv::ByteRecord::new();
     loop {
@@ -161,18 +163,14 @@ fn read_csv(
                     header_names[index]
                 )
             })?;
-            column.push(cell(text));
+            column.append_option(cell(text));
         }
         positions.push(line);
     }
-    Ok((cells, positions))
+    Ok((cells.iter_mut().map(|c| c.finish()).collect(), positions))
 }
 
-fn read_parquet(
-    path: &Path,
-    file: &str,
-    names: &[String],
-) -> anyhow::Result<(Vec<Vec<Option<String>>>, Vec<u64>)> {
+fn read_parquet(path: &Path, file: &str, names: &[String]) -> anyhow::Result<Cells> {
     use parquet::arrow::ProjectionMask;
     use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
 
@@ -192,7 +190,8 @@ fn read_parquet(
         .with_batch_size(8192)
         .build()
         .with_context(|| format!("{file}: not readable as Parquet"))?;
-    let mut cells: Vec<Vec<Option<String>>> = vec![Vec::new(); names.len()];
+    let mut cells: Vec<LargeStringBuilder> =
+        names.iter().map(|_| LargeStringBuilder::new()).collect();
     let mut positions = Vec::new();
     for batch in batches {
         let batch = batch.with_context(|| format!("{file}: not readable as Parquet"))?;
@@ -200,18 +199,19 @@ fn read_parquet(
             let array = batch
                 .column_by_name(name)
                 .with_context(|| format!("{file}: column `{name}` missing from a row group"))?;
-            let text = arrow_cast::cast(array, &<Utf8Type as ByteArrayType>::DATA_TYPE).with_context(|| {
-                format!(
-                    "{file}, column `{name}`: its type {} cannot be read as text or numbers",
-                    array.data_type()
-                )
-            })?;
+            let text = arrow_cast::cast(array, &<Utf8Type as ByteArrayType>::DATA_TYPE)
+                .with_context(|| {
+                    format!(
+                        "{file}, column `{name}`: its type {} cannot be read as text or numbers",
+                        array.data_type()
+                    )
+                })?;
             let text = text
                 .as_any()
                 .downcast_ref::<StringArray>()
                 .expect("a cast to Utf8 gives a StringArray");
             for i in 0..text.len() {
-                column.push(if text.is_null(i) {
+                column.append_option(if text.is_null(i) {
                     None
                 } else {
                     cell(text.value(i))
@@ -221,7 +221,7 @@ fn read_parquet(
         let start = positions.len() as u64;
         positions.extend((1..=batch.num_rows() as u64).map(|i| start + i));
     }
-    Ok((cells, positions))
+    Ok((cells.iter_mut().map(|c| c.finish()).collect(), positions))
 }
 
 /// Positions of `names` among the file's columns; an unknown name lists the columns found.
@@ -261,12 +261,12 @@ fn quoted(names: &[String]) -> String {
 }
 
 /// A cell's text, trimmed, or None when missing.
-fn cell(text: &str) -> Option<String> {
+fn cell(text: &str) -> Option<&str> {
     let text = text.trim();
     if text.is_empty() || text == "NA" {
         None
     } else {
-        Some(text.to_string())
+        Some(text)
     }
 }
 
@@ -305,13 +305,19 @@ impl Table {
 
     fn drop_missing_rows(&mut self) {
         let keep: Vec<bool> = (0..self.positions.len())
-            .map(|row| self.cells.iter().all(|column| column[row].is_some()))
+            .map(|row| self.cells.iter().all(|column| column.is_valid(row)))
             .collect();
         let mut kept = keep.iter();
-        self.positions.retain(|_| *kept.next().expect("one flag per row"));
+        self.positions
+            .retain(|_| *kept.next().expect("one flag per row"));
         for column in &mut self.cells {
-            let mut kept = keep.iter();
-            column.retain(|_| *kept.next().expect("one flag per row"));
+            let mut builder = LargeStringBuilder::new();
+            for (row, &keep) in keep.iter().enumerate() {
+                if keep {
+                    builder.append_value(column.value(row));
+                }
+            }
+            *column = builder.finish();
         }
         self.rows_dropped = self.rows_read - self.positions.len();
     }
@@ -329,8 +335,14 @@ impl Table {
         }
     }
 
-    /// The text cells of `column` (which must be one of those read), each checked present.
-    fn present(&self, column: &str) -> anyhow::Result<Vec<(usize, &str)>> {
+    /// Parses every cell of `column` (which must be one of those read); a missing cell or one
+    /// that `parse` rejects is an error naming its place.
+    fn parse<T>(
+        &self,
+        column: &str,
+        expected: &str,
+        parse: impl Fn(&str) -> Option<T>,
+    ) -> anyhow::Result<Vec<T>> {
         let index = self
             .names
             .iter()
@@ -339,27 +351,15 @@ impl Table {
         self.cells[index]
             .iter()
             .enumerate()
-            .map(|(row, value)| match value {
-                Some(text) => Ok((row, text.as_str())),
-                None => Err(anyhow!(
-                    "{} {}, column `{column}`: the value is missing\nhint: fill it in, or pass \
-                     --drop-missing to leave out (and count) rows with a missing value in a used column",
-                    self.file,
-                    self.place(row)
-                )),
-            })
-            .collect()
-    }
-
-    fn parse<T>(
-        &self,
-        column: &str,
-        expected: &str,
-        parse: impl Fn(&str) -> Option<T>,
-    ) -> anyhow::Result<Vec<T>> {
-        self.present(column)?
-            .into_iter()
-            .map(|(row, text)| {
+            .map(|(row, value)| {
+                let Some(text) = value else {
+                    bail!(
+                        "{} {}, column `{column}`: the value is missing\nhint: fill it in, or pass \
+                         --drop-missing to leave out (and count) rows with a missing value in a used column",
+                        self.file,
+                        self.place(row)
+                    );
+                };
                 parse(text).ok_or_else(|| {
                     anyhow!(
                         "{} {}, column `{column}`: expected {expected}, found `{text}`",
@@ -425,8 +425,8 @@ fn flag(text: &str) -> Option<bool> {
         "true" => Some(true),
         "false" => Some(false),
         _ => match finite(text) {
-            Some(x) if x == 0.0 => Some(false),
-            Some(x) if x == 1.0 => Some(true),
+            Some(0.0) => Some(false),
+            Some(1.0) => Some(true),
             _ => None,
         },
     }
@@ -449,6 +449,6 @@ mod tests {
         assert_eq!(flag("2"), None);
         assert_eq!(finite("NaN"), None);
         assert_eq!(cell("  NA "), None);
-        assert_eq!(cell(" 3 ").as_deref(), Some("3"));
+        assert_eq!(cell(" 3 "), Some("3"));
     }
 }
