@@ -44,6 +44,75 @@ impl IdSet {
     }
 }
 
+/// Ids accepted from one table of an extract, for the duplicate rule and for replacing stored rows
+/// on append. Extracts usually number their rows in increasing order, so the ids are kept in two
+/// parts: those that arrived in increasing byte order, appended to one arena (sorted by
+/// construction, searched by bisection), and a hashed set of the others. Every id of the second
+/// part is at most the arena's last id, so an id above it is new without any lookup — the common
+/// case costs no random memory access however many ids there are.
+#[derive(Debug, Default, Clone)]
+pub struct AcceptedIds {
+    bytes: Vec<u8>,
+    ends: Vec<usize>,
+    others: IdSet,
+}
+
+impl AcceptedIds {
+    fn sorted(&self, i: usize) -> &[u8] {
+        let start = if i == 0 { 0 } else { self.ends[i - 1] };
+        &self.bytes[start..self.ends[i]]
+    }
+
+    fn last(&self) -> Option<&[u8]> {
+        self.ends.len().checked_sub(1).map(|i| self.sorted(i))
+    }
+
+    pub fn contains(&self, id: &str) -> bool {
+        let id = id.as_bytes();
+        match self.last() {
+            None => false,
+            Some(last) if id > last => false,
+            Some(_) => {
+                let (mut lo, mut hi) = (0, self.ends.len());
+                while lo < hi {
+                    let mid = (lo + hi) / 2;
+                    match self.sorted(mid).cmp(id) {
+                        std::cmp::Ordering::Less => lo = mid + 1,
+                        std::cmp::Ordering::Greater => hi = mid,
+                        std::cmp::Ordering::Equal => return true,
+                    }
+                }
+                self.others.contains_hash(xxhash_rust::xxh3::xxh3_128(id))
+            }
+        }
+    }
+
+    /// Add an id (the caller has checked it is not there yet).
+    pub fn insert(&mut self, id: &str) {
+        if self.last().is_none_or(|last| id.as_bytes() > last) {
+            self.bytes.extend_from_slice(id.as_bytes());
+            self.ends.push(self.bytes.len());
+        } else {
+            self.others.insert_hash(IdSet::hash(id));
+        }
+    }
+
+    pub fn len(&self) -> usize {
+        self.ends.len() + self.others.len()
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    /// Make room for about `n` more ids of the average length seen so far.
+    pub fn reserve(&mut self, n: usize) {
+        let average = if self.ends.is_empty() { 16 } else { self.bytes.len() / self.ends.len() + 1 };
+        self.bytes.reserve(n * average);
+        self.ends.reserve(n);
+    }
+}
+
 /// The keys are already uniform hashes (or small integers): fold them instead of hashing again.
 #[derive(Default)]
 pub struct FoldHasher(u64);
@@ -87,6 +156,37 @@ pub struct IngestContext {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn accepted_ids_in_and_out_of_order() {
+        let mut a = AcceptedIds::default();
+        for id in ["L003", "L005", "L004", "L010", "L001", "M1"] {
+            assert!(!a.contains(id), "{id}");
+            a.insert(id);
+            assert!(a.contains(id), "{id}");
+        }
+        for absent in ["L002", "L006", "L0", "", "Z", "M0"] {
+            assert!(!a.contains(absent), "{absent}");
+        }
+        assert_eq!(a.len(), 6);
+    }
+
+    proptest::proptest! {
+        #![proptest_config(proptest::prelude::ProptestConfig::with_cases(64))]
+        /// Differential: the two-part id store answers like a plain set on any id sequence.
+        #[test]
+        fn accepted_ids_agree_with_a_plain_set(ids in proptest::collection::vec("[A-C][0-9]{0,3}", 0..200)) {
+            let mut a = AcceptedIds::default();
+            let mut plain = std::collections::HashSet::new();
+            for id in &ids {
+                proptest::prop_assert_eq!(a.contains(id), plain.contains(id.as_str()));
+                if plain.insert(id.as_str()) {
+                    a.insert(id);
+                }
+            }
+            proptest::prop_assert_eq!(a.len(), plain.len());
+        }
+    }
 
     #[test]
     fn id_set_behaves_as_a_set() {

@@ -2,7 +2,7 @@
 //! into a new generation of the store, and commit it atomically.
 
 use crate::IngestError;
-use crate::context::{IdSet, IngestContext};
+use crate::context::{AcceptedIds, IdSet, IngestContext};
 use crate::extract::{Extract, TableFile, fingerprint};
 use crate::parquet_out::{BackgroundPartWriter, PartWriter, WrittenPart};
 use crate::rejects::RejectsWriter;
@@ -434,7 +434,7 @@ fn carry_over(
     root: &Path,
     table: TableName,
     old: &StoredTable,
-    accepted: &IdSet,
+    accepted: &AcceptedIds,
     generation: u64,
     stored: &mut StoredTable,
     parts: &mut Vec<WrittenPart>,
@@ -448,8 +448,8 @@ fn carry_over(
     for file in &old.files {
         let mut hits = 0u64;
         if !accepted.is_empty() {
-            store::for_each_id(root, file, id_column, |h| {
-                if accepted.contains_hash(h) {
+            store::for_each_id(root, file, id_column, |id| {
+                if accepted.contains(id) {
                     hits += 1;
                 }
             })?;
@@ -484,8 +484,8 @@ fn load_ids(
     };
     into.reserve(stored.rows as usize);
     for file in &stored.files {
-        store::for_each_id(root, file, column, |h| {
-            into.insert_hash(h);
+        store::for_each_id(root, file, column, |id| {
+            into.insert_hash(IdSet::hash(id));
         })?;
     }
     Ok(())

@@ -13,14 +13,14 @@
 //! A failure or kill before step 3 leaves the old manifest, and every file it lists, unchanged.
 
 use crate::IngestError;
-use crate::context::IdSet;
+use crate::context::AcceptedIds;
 use crate::extract::sha256_file;
 use crate::parquet_out::{PartWriter, WrittenPart};
 use arrow_array::cast::AsArray;
 use arrow_array::{Array, BooleanArray};
 use kcohort_model::Manifest;
 use kcohort_model::manifest::StoredFile;
-use kcohort_model::store_layout::{MANIFEST_FILE, REJECTS_DIR, TABLES_DIR, TEMP_PREFIX};
+use kcohort_model::store_layout::{DERIVED_DIR, MANIFEST_FILE, REJECTS_DIR, TABLES_DIR, TEMP_PREFIX};
 use std::collections::HashSet;
 use std::fs::File;
 use std::path::{Path, PathBuf};
@@ -130,7 +130,7 @@ pub fn commit(
 /// Remove files under the store's data folders that the manifest does not list.
 pub fn remove_unlisted(root: &Path, manifest: &Manifest) -> Result<(), IngestError> {
     let listed: HashSet<PathBuf> = manifest.all_files().map(|f| root.join(&f.path)).collect();
-    for top in [TABLES_DIR, REJECTS_DIR] {
+    for top in [TABLES_DIR, REJECTS_DIR, DERIVED_DIR] {
         let mut stack = vec![root.join(top)];
         while let Some(dir) = stack.pop() {
             let Ok(entries) = std::fs::read_dir(&dir) else {
@@ -223,18 +223,18 @@ fn open_batches(
     Ok(builder.with_batch_size(65_536).build()?)
 }
 
-/// Hashes of the ids in one column of a stored part.
+/// Call `f` with every id in one column of a stored part.
 pub fn for_each_id(
     root: &Path,
     file: &StoredFile,
     column: &str,
-    mut f: impl FnMut(u128),
+    mut f: impl FnMut(&str),
 ) -> Result<(), IngestError> {
     for batch in open_batches(&root.join(&file.path), Some(&[column]))? {
         let batch = batch?;
         let ids = batch.column(0).as_string::<i32>();
         for i in 0..ids.len() {
-            f(IdSet::hash(ids.value(i)));
+            f(ids.value(i));
         }
     }
     Ok(())
@@ -245,7 +245,7 @@ pub fn copy_without(
     root: &Path,
     file: &StoredFile,
     column: &str,
-    drop: &IdSet,
+    drop: &AcceptedIds,
     out: &mut PartWriter,
 ) -> Result<u64, IngestError> {
     let mut dropped = 0u64;

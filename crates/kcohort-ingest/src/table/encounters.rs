@@ -1,5 +1,5 @@
 use super::{TableRows, TableRun, check_references, instant_builder};
-use crate::context::IngestContext;
+use crate::context::{IdSet, IngestContext};
 use crate::row_check::{Reject, RowCheck, index_of};
 use arrow_array::builder::ArrayBuilder;
 use arrow_array::builder::{StringBuilder, TimestampMicrosecondBuilder};
@@ -78,8 +78,8 @@ impl TableRows for EncounterRows {
         else {
             unreachable!("an accepted row has every required value");
         };
-        run.accepted_ids.insert_hash(claim);
-        ctx.encounters.insert_hash(claim);
+        run.accepted_ids.insert(claim);
+        ctx.encounters.insert_hash(IdSet::hash(claim));
         self.encounter_id.append_value(id);
         self.patient_id.append_value(patient);
         self.class.append_value(class);

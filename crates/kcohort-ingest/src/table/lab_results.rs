@@ -207,7 +207,7 @@ impl TableRows for LabRows {
         else {
             unreachable!("an accepted row has every required value");
         };
-        run.accepted_ids.insert_hash(claim);
+        run.accepted_ids.insert(claim);
         note_encounter_ref(encounter, ctx, run);
         self.result_id.append_value(id);
         self.patient_id.append_value(patient);

@@ -11,7 +11,7 @@ mod lab_results;
 mod medication_events;
 mod patients;
 
-use crate::context::{IdSet, IngestContext};
+use crate::context::{AcceptedIds, IngestContext};
 use crate::row_check::{Reject, RowCheck};
 use arrow_array::RecordBatch;
 use arrow_array::builder::TimestampMicrosecondBuilder;
@@ -37,8 +37,11 @@ pub trait TableRows: Send {
 #[derive(Debug, Default)]
 pub struct TableRun {
     /// Ids accepted from this extract (duplicates rule; replacement on append).
-    pub accepted_ids: IdSet,
+    pub accepted_ids: AcceptedIds,
     pub counts: TableCounts,
+    /// The patient of the previous row that passed the reference rule: rows usually come grouped
+    /// by patient, so most rows need no lookup.
+    pub last_patient: String,
 }
 
 pub fn rows_for(table: TableName) -> Box<dyn TableRows> {
@@ -56,29 +59,33 @@ fn instant_builder() -> TimestampMicrosecondBuilder {
 }
 
 /// The last two rules: the row's id must be new in this extract, and its patient known.
-/// Returns the id hash to claim once the row is accepted.
-fn check_references(
+/// Returns the id to claim once the row is accepted.
+fn check_references<'a>(
     check: &mut RowCheck<'_>,
-    id: Option<(usize, &str)>,
+    id: Option<(usize, &'a str)>,
     patient: Option<(usize, &str)>,
     ctx: &IngestContext,
-    run: &TableRun,
-) -> Option<u128> {
+    run: &mut TableRun,
+) -> Option<&'a str> {
     let mut claim = None;
     if let Some((column, id)) = id
         && !check.failed_before(RejectReason::DuplicateId)
     {
-        let h = IdSet::hash(id);
-        if run.accepted_ids.contains_hash(h) {
+        if run.accepted_ids.contains(id) {
             check.fail_reference(RejectReason::DuplicateId, column, id);
         }
-        claim = Some(h);
+        claim = Some(id);
     }
     if let Some((column, patient)) = patient
         && !check.failed_before(RejectReason::UnknownPatient)
-        && !ctx.patients.contains(patient)
+        && run.last_patient != patient
     {
-        check.fail_reference(RejectReason::UnknownPatient, column, patient);
+        if ctx.patients.contains(patient) {
+            run.last_patient.clear();
+            run.last_patient.push_str(patient);
+        } else {
+            check.fail_reference(RejectReason::UnknownPatient, column, patient);
+        }
     }
     claim
 }
@@ -95,6 +102,7 @@ fn note_encounter_ref(encounter: Option<&str>, ctx: &IngestContext, run: &mut Ta
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::context::IdSet;
     use crate::timestamp::{SiteClock, SiteZone};
 
     pub(super) fn context() -> IngestContext {

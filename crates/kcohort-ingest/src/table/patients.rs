@@ -1,5 +1,5 @@
 use super::{TableRows, TableRun, check_references, instant_builder};
-use crate::context::IngestContext;
+use crate::context::{IdSet, IngestContext};
 use crate::row_check::{Reject, RowCheck, index_of};
 use arrow_array::builder::ArrayBuilder;
 use arrow_array::builder::{Int32Builder, StringBuilder, TimestampMicrosecondBuilder};
@@ -80,8 +80,8 @@ impl TableRows for PatientRows {
         let (Some(id), Some(sex), Some(year), Some(claim)) = (id, sex, year, claim) else {
             unreachable!("an accepted row has every required value");
         };
-        run.accepted_ids.insert_hash(claim);
-        ctx.patients.insert_hash(claim);
+        run.accepted_ids.insert(claim);
+        ctx.patients.insert_hash(IdSet::hash(claim));
         self.patient_id.append_value(id);
         self.sex.append_value(sex);
         self.birth_year.append_value(year);
