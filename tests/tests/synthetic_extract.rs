@@ -9,7 +9,11 @@ use kcohort_synth::SynthConfig;
 fn ingest_recovers_exactly_the_planted_rejects_of_a_10000_patient_extract() {
     let dir = tempfile::tempdir().unwrap();
     let extract = dir.path().join("extract");
-    let config = SynthConfig { patients: 10_000, seed: 20_261_201, ..Default::default() };
+    let config = SynthConfig {
+        patients: 10_000,
+        seed: 20_261_201,
+        ..Default::default()
+    };
     let truth = kcohort_synth::generate(&config, &extract).unwrap();
     let options = IngestOptions {
         site_timezone: truth.site_timezone.clone(),
@@ -26,10 +30,16 @@ fn ingest_recovers_exactly_the_planted_rejects_of_a_10000_patient_extract() {
             problems.push(format!("{table}: does not reconcile {counts:?}"));
         }
         if counts.rows_read != planted.rows {
-            problems.push(format!("{table}: read {} rows, the generator wrote {}", counts.rows_read, planted.rows));
+            problems.push(format!(
+                "{table}: read {} rows, the generator wrote {}",
+                counts.rows_read, planted.rows
+            ));
         }
         if counts.rows_accepted != planted.clean_rows {
-            problems.push(format!("{table}: accepted {}, the generator wrote {} clean rows", counts.rows_accepted, planted.clean_rows));
+            problems.push(format!(
+                "{table}: accepted {}, the generator wrote {} clean rows",
+                counts.rows_accepted, planted.clean_rows
+            ));
         }
         if counts.rejected_by_reason != planted.planted_defects {
             problems.push(format!(
@@ -39,6 +49,14 @@ fn ingest_recovers_exactly_the_planted_rejects_of_a_10000_patient_extract() {
         }
     }
     assert!(problems.is_empty(), "{}", problems.join("\n"));
-    assert!(truth.files.values().map(|f| f.planted_defects.len()).sum::<usize>() >= 10, "the extract must plant many kinds of defect");
+    assert!(
+        truth
+            .files
+            .values()
+            .map(|f| f.planted_defects.len())
+            .sum::<usize>()
+            >= 10,
+        "the extract must plant many kinds of defect"
+    );
     assert!(store::verify(&store_dir).unwrap().is_empty());
 }

@@ -20,11 +20,27 @@ pub fn render(manifest: &Manifest, record: &IngestRecord, unchanged: bool) -> St
         record.seq,
         record.mode,
         kcohort_ingest::timestamp::describe_instant(&manifest.extract_end, &manifest.site_timezone),
-        if manifest.extract_end_source == "given" { "as given" } else { "the latest timestamp in the extract" }
+        if manifest.extract_end_source == "given" {
+            "as given"
+        } else {
+            "the latest timestamp in the extract"
+        }
     );
     let _ = writeln!(out);
-    let h = ["table", "rows read", "accepted", "rejected", "replaced", "in store", "check"];
-    let _ = writeln!(out, "{:<18} {:>12} {:>12} {:>10} {:>10} {:>12}  {}", h[0], h[1], h[2], h[3], h[4], h[5], h[6]);
+    let h = [
+        "table",
+        "rows read",
+        "accepted",
+        "rejected",
+        "replaced",
+        "in store",
+        "check",
+    ];
+    let _ = writeln!(
+        out,
+        "{:<18} {:>12} {:>12} {:>10} {:>10} {:>12}  {}",
+        h[0], h[1], h[2], h[3], h[4], h[5], h[6]
+    );
     for table in TableName::ALL {
         let Some(c) = record.tables.get(table.as_str()) else {
             continue;
@@ -85,7 +101,10 @@ pub fn render(manifest: &Manifest, record: &IngestRecord, unchanged: bool) -> St
             ));
         }
         if c.crlf_lines > 0 {
-            notes.push(format!("{t}: {} in CR LF (read as line ends)", count(c.crlf_lines, "line ends", "lines end")));
+            notes.push(format!(
+                "{t}: {} in CR LF (read as line ends)",
+                count(c.crlf_lines, "line ends", "lines end")
+            ));
         }
         if c.ambiguous_local_times > 0 {
             notes.push(format!(
@@ -96,7 +115,11 @@ pub fn render(manifest: &Manifest, record: &IngestRecord, unchanged: bool) -> St
         if c.unmatched_encounter_refs > 0 {
             notes.push(format!(
                 "{t}: {} an encounter not in the extract or store (kept)",
-                count(c.unmatched_encounter_refs, "accepted row names", "accepted rows name")
+                count(
+                    c.unmatched_encounter_refs,
+                    "accepted row names",
+                    "accepted rows name"
+                )
             ));
         }
         if c.converted_units > 0 {
@@ -135,5 +158,9 @@ pub fn render(manifest: &Manifest, record: &IngestRecord, unchanged: bool) -> St
 
 /// "1 thing" / "2 things".
 fn count(n: u64, one: &str, many: &str) -> String {
-    if n == 1 { format!("1 {one}") } else { format!("{n} {many}") }
+    if n == 1 {
+        format!("1 {one}")
+    } else {
+        format!("{n} {many}")
+    }
 }

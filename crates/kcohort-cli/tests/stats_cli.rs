@@ -108,7 +108,7 @@ fn proportion_reproduces_newcombe_1998_table_ii() {
         "example,cases,total\na,81,263\nb,15,148\nc,0,20\nd,1,29\ne,29,29\nf,5,25\n",
     );
     // Newcombe, Stat Med 1998;17:857, Table II: method 3 (Wilson score) and method 5 (exact,
-    // Clopper–Pearson), 4 decimals, as listed in /work/shared/DOMAIN.md §5.1 [published values as
+    // Clopper–Pearson), 4 decimals, as listed in the shared domain reference (DOMAIN.md §5.1) [published values as
     // remembered there; recomputed with scipy 1.17.1 in tests/reference/rates/fixtures/proportion.json].
     // Tolerance 0.5e-4 is the table's rounding.
     let wilson = [

@@ -107,7 +107,11 @@ impl AcceptedIds {
 
     /// Make room for about `n` more ids of the average length seen so far.
     pub fn reserve(&mut self, n: usize) {
-        let average = if self.ends.is_empty() { 16 } else { self.bytes.len() / self.ends.len() + 1 };
+        let average = if self.ends.is_empty() {
+            16
+        } else {
+            self.bytes.len() / self.ends.len() + 1
+        };
         self.bytes.reserve(n * average);
         self.ends.reserve(n);
     }

@@ -338,7 +338,8 @@ fn read_table(
             // step, twice the memory.
             let per_row = source.bytes_read().max(1) as f64 / SIZING_SAMPLE_ROWS as f64;
             let expected = (total as f64 / per_row * 1.05) as usize;
-            run.accepted_ids.reserve(expected.saturating_sub(run.accepted_ids.len()));
+            run.accepted_ids
+                .reserve(expected.saturating_sub(run.accepted_ids.len()));
             match table {
                 TableName::Patients => ctx.patients.reserve(expected),
                 TableName::Encounters => ctx.encounters.reserve(expected),

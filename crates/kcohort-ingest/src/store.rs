@@ -20,7 +20,9 @@ use arrow_array::cast::AsArray;
 use arrow_array::{Array, BooleanArray};
 use kcohort_model::Manifest;
 use kcohort_model::manifest::StoredFile;
-use kcohort_model::store_layout::{DERIVED_DIR, MANIFEST_FILE, REJECTS_DIR, TABLES_DIR, TEMP_PREFIX};
+use kcohort_model::store_layout::{
+    DERIVED_DIR, MANIFEST_FILE, REJECTS_DIR, TABLES_DIR, TEMP_PREFIX,
+};
 use std::collections::HashSet;
 use std::fs::File;
 use std::path::{Path, PathBuf};

@@ -7,9 +7,9 @@
 //! not exist there (skipped by a daylight-saving change) is rejected; one that exists twice (the
 //! hour repeated when clocks go back) takes the earlier instant and is counted.
 
+use crate::context::FoldHasher;
 use chrono::{FixedOffset, LocalResult, NaiveDate, NaiveDateTime, NaiveTime, Offset, TimeZone};
 use chrono_tz::Tz;
-use crate::context::FoldHasher;
 use std::collections::HashMap;
 use std::hash::BuildHasherDefault;
 
@@ -231,7 +231,10 @@ pub fn format_instant(us: i64) -> String {
 /// An RFC 3339 instant shown in the site's local time for people, e.g.
 /// `2026-01-05 00:00 Europe/Vienna (2026-01-04 23:00 UTC)`. Unparseable input is returned as is.
 pub fn describe_instant(rfc3339: &str, zone: &str) -> String {
-    let (Ok(t), Ok(z)) = (chrono::DateTime::parse_from_rfc3339(rfc3339), SiteZone::parse(zone)) else {
+    let (Ok(t), Ok(z)) = (
+        chrono::DateTime::parse_from_rfc3339(rfc3339),
+        SiteZone::parse(zone),
+    ) else {
         return rfc3339.to_string();
     };
     let local = match z {
@@ -239,7 +242,11 @@ pub fn describe_instant(rfc3339: &str, zone: &str) -> String {
         SiteZone::Fixed(off) => t.with_timezone(&off).format("%Y-%m-%d %H:%M").to_string(),
     };
     let utc = t.to_utc().format("%Y-%m-%d %H:%M").to_string();
-    if utc == local { format!("{local} {zone}") } else { format!("{local} {zone} ({utc} UTC)") }
+    if utc == local {
+        format!("{local} {zone}")
+    } else {
+        format!("{local} {zone} ({utc} UTC)")
+    }
 }
 
 #[cfg(test)]
@@ -364,7 +371,10 @@ mod tests {
             describe_instant("2026-01-04T23:00:00.000000Z", "Europe/Vienna"),
             "2026-01-05 00:00 Europe/Vienna (2026-01-04 23:00 UTC)"
         );
-        assert_eq!(describe_instant("2026-01-04T23:00:00Z", "UTC"), "2026-01-04 23:00 UTC");
+        assert_eq!(
+            describe_instant("2026-01-04T23:00:00Z", "UTC"),
+            "2026-01-04 23:00 UTC"
+        );
         assert_eq!(describe_instant("garbage", "UTC"), "garbage");
     }
 

@@ -40,10 +40,16 @@ fn main() {
 #[divan::bench(args = [false, true])]
 fn u_charts_50_units_10_years(bencher: Bencher, laney: bool) {
     let data: Vec<(Vec<u64>, Vec<f64>)> = (0..UNITS).map(unit_series).collect();
-    let options = ChartOptions { laney, period_label: "month".into(), ..ChartOptions::default() };
+    let options = ChartOptions {
+        laney,
+        period_label: "month".into(),
+        ..ChartOptions::default()
+    };
     bencher.bench(|| {
-        let charts: Vec<_> =
-            data.par_iter().map(|(e, d)| u_chart(e, d, &options).expect("valid series")).collect();
+        let charts: Vec<_> = data
+            .par_iter()
+            .map(|(e, d)| u_chart(e, d, &options).expect("valid series"))
+            .collect();
         divan::black_box(charts)
     });
 }

@@ -60,8 +60,17 @@ impl Progress for Meter {
         *self.started.lock().expect("meter") = Some(Instant::now());
     }
     fn table_finished(&self, table: TableName) {
-        let elapsed = self.started.lock().expect("meter").take().map(|t| t.elapsed()).unwrap_or_default();
-        self.tables.lock().expect("meter").push((table, elapsed, peak_memory_kib()));
+        let elapsed = self
+            .started
+            .lock()
+            .expect("meter")
+            .take()
+            .map(|t| t.elapsed())
+            .unwrap_or_default();
+        self.tables
+            .lock()
+            .expect("meter")
+            .push((table, elapsed, peak_memory_kib()));
     }
 }
 
@@ -86,7 +95,11 @@ fn ingest(args: BenchIngestArgs) -> anyhow::Result<()> {
         }
     };
     let (extract, zone, end) = match &args.extract {
-        Some(dir) => (dir.clone(), args.site_timezone.clone(), args.extract_end.clone()),
+        Some(dir) => (
+            dir.clone(),
+            args.site_timezone.clone(),
+            args.extract_end.clone(),
+        ),
         None => {
             let dir = work.join("extract");
             let started = Instant::now();
@@ -103,18 +116,34 @@ fn ingest(args: BenchIngestArgs) -> anyhow::Result<()> {
     };
     let store = work.join("store");
     if store.exists() {
-        std::fs::remove_dir_all(&store).with_context(|| format!("cannot clear {}", store.display()))?;
+        std::fs::remove_dir_all(&store)
+            .with_context(|| format!("cannot clear {}", store.display()))?;
     }
-    let options = IngestOptions { site_timezone: zone, extract_end: end, mode: Mode::New, fail_point: None };
-    let meter = Meter { started: Mutex::new(None), tables: Mutex::new(Vec::new()) };
+    let options = IngestOptions {
+        site_timezone: zone,
+        extract_end: end,
+        mode: Mode::New,
+        fail_point: None,
+    };
+    let meter = Meter {
+        started: Mutex::new(None),
+        tables: Mutex::new(Vec::new()),
+    };
     reset_peak_memory();
     let started = Instant::now();
     let outcome = kcohort_ingest::ingest(&extract, &store, &options, &meter)?;
     let total = started.elapsed().as_secs_f64();
     let input_bytes: u64 = outcome.record.inputs.iter().map(|i| i.bytes).sum();
-    println!("\n{:<18} {:>12} {:>9} {:>14} {:>14}", "table", "rows", "seconds", "rows/s", "peak RSS MiB");
+    println!(
+        "\n{:<18} {:>12} {:>9} {:>14} {:>14}",
+        "table", "rows", "seconds", "rows/s", "peak RSS MiB"
+    );
     for (table, elapsed, peak) in meter.tables.lock().expect("meter").iter() {
-        let rows = outcome.record.tables.get(table.as_str()).map_or(0, |c| c.rows_read);
+        let rows = outcome
+            .record
+            .tables
+            .get(table.as_str())
+            .map_or(0, |c| c.rows_read);
         let secs = elapsed.as_secs_f64();
         println!(
             "{:<18} {:>12} {:>9.2} {:>14.0} {:>14}",
@@ -128,7 +157,13 @@ fn ingest(args: BenchIngestArgs) -> anyhow::Result<()> {
     let rows: u64 = outcome.record.tables.values().map(|c| c.rows_read).sum();
     // Peaks were reset per table; the run's peak is the largest of them (hashing before the
     // first table needs only a fixed buffer).
-    let overall_peak = meter.tables.lock().expect("meter").iter().filter_map(|t| t.2).max();
+    let overall_peak = meter
+        .tables
+        .lock()
+        .expect("meter")
+        .iter()
+        .filter_map(|t| t.2)
+        .max();
     println!(
         "{:<18} {:>12} {:>9.2} {:>14.0} {:>14}   ({:.0} MB/s of input, hashing and commit included)",
         "all",
@@ -143,6 +178,12 @@ fn ingest(args: BenchIngestArgs) -> anyhow::Result<()> {
 
 fn folder_bytes(dir: &std::path::Path) -> u64 {
     std::fs::read_dir(dir)
-        .map(|entries| entries.flatten().filter_map(|e| e.metadata().ok()).map(|m| m.len()).sum())
+        .map(|entries| {
+            entries
+                .flatten()
+                .filter_map(|e| e.metadata().ok())
+                .map(|m| m.len())
+                .sum()
+        })
         .unwrap_or(0)
 }

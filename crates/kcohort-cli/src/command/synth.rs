@@ -24,9 +24,13 @@ pub struct SynthArgs {
 pub fn run(args: SynthArgs) -> anyhow::Result<()> {
     let mut config = match &args.settings {
         Some(path) => {
-            let text = std::fs::read_to_string(path).with_context(|| format!("cannot read {}", path.display()))?;
+            let text = std::fs::read_to_string(path)
+                .with_context(|| format!("cannot read {}", path.display()))?;
             serde_json::from_str(&text).with_context(|| {
-                format!("{}: not valid generator settings (see the `config` object of a truth.json)", path.display())
+                format!(
+                    "{}: not valid generator settings (see the `config` object of a truth.json)",
+                    path.display()
+                )
             })?
         }
         None => kcohort_synth::SynthConfig::default(),
@@ -47,7 +51,11 @@ pub fn run(args: SynthArgs) -> anyhow::Result<()> {
 
 /// Generate with the default settings (used by `kcohort bench`).
 pub fn generate(patients: u64, seed: u64, out: &Path) -> anyhow::Result<kcohort_synth::Truth> {
-    let config = kcohort_synth::SynthConfig { patients, seed, ..Default::default() };
+    let config = kcohort_synth::SynthConfig {
+        patients,
+        seed,
+        ..Default::default()
+    };
     write(&config, out)
 }
 
@@ -56,7 +64,11 @@ fn write(config: &kcohort_synth::SynthConfig, out: &Path) -> anyhow::Result<kcoh
     let total = config.patients;
     let bar = indicatif::ProgressBar::with_draw_target(
         Some(total),
-        if show { indicatif::ProgressDrawTarget::stderr() } else { indicatif::ProgressDrawTarget::hidden() },
+        if show {
+            indicatif::ProgressDrawTarget::stderr()
+        } else {
+            indicatif::ProgressDrawTarget::hidden()
+        },
     );
     let result = kcohort_synth::generate_with_progress(config, out, &|done| bar.set_position(done));
     bar.finish_and_clear();

@@ -87,7 +87,11 @@ impl LabRows {
     }
 
     fn factor(&mut self, analyte: Analyte, unit: &str) -> Option<f64> {
-        if let Some((_, _, f)) = self.unit_cache.iter().find(|(a, u, _)| *a == analyte && u == unit) {
+        if let Some((_, _, f)) = self
+            .unit_cache
+            .iter()
+            .find(|(a, u, _)| *a == analyte && u == unit)
+        {
             return *f;
         }
         let f = analyte.conversion_for(unit).map(|c| c.factor);
