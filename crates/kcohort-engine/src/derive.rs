@@ -16,7 +16,7 @@
 
 use crate::EngineError;
 use crate::definition::{DEFINITIONS, plan_definition};
-use crate::derived_output::{WrittenTable, hex, write_table};
+use crate::derived_output::{WrittenTable, write_table};
 use crate::parameter::Parameters;
 use crate::session::{EngineOptions, register_contract_tables, register_parquet_files, session};
 use datafusion::error::DataFusionError;
@@ -24,6 +24,7 @@ use kcohort_model::Manifest;
 use kcohort_model::manifest::{StoredFile, StoredTable};
 use kcohort_model::store_layout::{DERIVED_DIR, MANIFEST_FILE, TEMP_PREFIX};
 use kcohort_model::study::Study;
+use kcohort_store::hex;
 use sha2::{Digest, Sha256};
 use std::collections::{BTreeMap, HashSet};
 use std::fs::File;
@@ -279,9 +280,7 @@ pub async fn derive_async(
 }
 
 fn sync_dir(dir: &Path) -> Result<(), EngineError> {
-    File::open(dir)
-        .and_then(|d| d.sync_all())
-        .map_err(|e| EngineError::io(dir, e))
+    kcohort_store::sync_dir(dir).map_err(|e| EngineError::io(dir, e))
 }
 
 /// Make `written` and `next` the store (see the module docs). `previous` is the manifest the run
@@ -324,19 +323,7 @@ fn commit(
 /// interrupted ones).
 fn remove_unlisted_derived(root: &Path, manifest: &Manifest) -> Result<(), EngineError> {
     let listed: HashSet<PathBuf> = manifest.all_files().map(|f| root.join(&f.path)).collect();
-    let mut stack = vec![root.join(DERIVED_DIR)];
-    while let Some(dir) = stack.pop() {
-        let Ok(entries) = std::fs::read_dir(&dir) else {
-            continue;
-        };
-        for entry in entries.flatten() {
-            let path = entry.path();
-            if path.is_dir() {
-                stack.push(path);
-            } else if !listed.contains(&path) {
-                std::fs::remove_file(&path).map_err(|e| EngineError::io(&path, e))?;
-            }
-        }
-    }
+    kcohort_store::remove_unlisted(root, &[DERIVED_DIR], &listed)
+        .map_err(|(path, e)| EngineError::io(&path, e))?;
     Ok(())
 }

@@ -15,9 +15,9 @@ use datafusion::parquet::arrow::ArrowWriter;
 use datafusion::parquet::basic::{Compression, ZstdLevel};
 use datafusion::parquet::file::properties::WriterProperties;
 use futures::StreamExt;
-use sha2::{Digest, Sha256};
+use kcohort_store::HashingWriter;
 use std::fs::File;
-use std::io::{BufWriter, Write};
+use std::io::BufWriter;
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
@@ -33,28 +33,6 @@ pub struct WrittenTable {
     pub rows: u64,
     pub bytes: u64,
     pub sha256: String,
-}
-
-struct HashingFile {
-    inner: BufWriter<File>,
-    hasher: Sha256,
-    bytes: u64,
-}
-
-impl Write for HashingFile {
-    fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
-        let n = self.inner.write(buf)?;
-        self.hasher.update(&buf[..n]);
-        self.bytes += n as u64;
-        Ok(n)
-    }
-    fn flush(&mut self) -> std::io::Result<()> {
-        self.inner.flush()
-    }
-}
-
-pub(crate) fn hex(bytes: &[u8]) -> String {
-    bytes.iter().map(|b| format!("{b:02x}")).collect()
 }
 
 /// The stored form of a result schema: view strings become `Utf8`.
@@ -107,11 +85,7 @@ pub async fn write_table(
         message,
     };
     let file = File::create(&temp_path).map_err(|e| EngineError::io(&temp_path, e))?;
-    let sink = HashingFile {
-        inner: BufWriter::with_capacity(1 << 20, file),
-        hasher: Sha256::new(),
-        bytes: 0,
-    };
+    let sink = HashingWriter::new(BufWriter::with_capacity(1 << 20, file));
     let schema = stored_schema(&stream.schema());
     let properties = WriterProperties::builder()
         .set_compression(Compression::ZSTD(
@@ -128,11 +102,10 @@ pub async fn write_table(
         let stored = to_stored(&batch, &schema).map_err(&fail)?;
         writer.write(&stored).map_err(|e| fail(e.to_string()))?;
     }
-    let HashingFile {
-        inner,
-        hasher,
-        bytes,
-    } = writer.into_inner().map_err(|e| fail(e.to_string()))?;
+    let (inner, bytes, sha256) = writer
+        .into_inner()
+        .map_err(|e| fail(e.to_string()))?
+        .finish();
     let file = inner
         .into_inner()
         .map_err(|e| EngineError::io(&temp_path, e.into_error()))?;
@@ -143,6 +116,6 @@ pub async fn write_table(
         relative: relative.to_string(),
         rows,
         bytes,
-        sha256: hex(&hasher.finalize()),
+        sha256,
     })
 }

@@ -4,7 +4,6 @@ use crate::IngestError;
 use kcohort_model::TableName;
 use kcohort_model::manifest::InputFile;
 use sha2::{Digest, Sha256};
-use std::io::Read;
 use std::path::{Path, PathBuf};
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -139,53 +138,17 @@ pub fn fingerprint(inputs: &[InputFile]) -> String {
     for l in lines {
         h.update(l.as_bytes());
     }
-    hex(&h.finalize())
+    kcohort_store::hex(&h.finalize())
 }
 
 /// Size and SHA-256 (lower-case hex, as `sha256sum` prints it) of a file.
 pub fn sha256_file(path: &Path) -> Result<(u64, String), IngestError> {
-    let mut file = std::fs::File::open(path).map_err(|e| IngestError::io(path, e))?;
-    let mut h = Sha256::new();
-    let mut buf = vec![0u8; 1 << 20];
-    let mut total = 0u64;
-    loop {
-        let n = file.read(&mut buf).map_err(|e| IngestError::io(path, e))?;
-        if n == 0 {
-            break;
-        }
-        h.update(&buf[..n]);
-        total += n as u64;
-    }
-    Ok((total, hex(&h.finalize())))
-}
-
-pub fn hex(bytes: &[u8]) -> String {
-    const DIGITS: &[u8; 16] = b"0123456789abcdef";
-    let mut s = String::with_capacity(bytes.len() * 2);
-    for b in bytes {
-        s.push(DIGITS[(b >> 4) as usize] as char);
-        s.push(DIGITS[(b & 15) as usize] as char);
-    }
-    s
+    kcohort_store::sha256_file(path).map_err(|e| IngestError::io(path, e))
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    #[test]
-    fn sha256_of_abc_matches_fips_180_2_example() {
-        // FIPS 180-2, appendix B.1: SHA-256("abc").
-        let dir = tempfile::tempdir().unwrap();
-        let p = dir.path().join("abc");
-        std::fs::write(&p, b"abc").unwrap();
-        let (n, h) = sha256_file(&p).unwrap();
-        assert_eq!(n, 3);
-        assert_eq!(
-            h,
-            "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad"
-        );
-    }
 
     #[test]
     fn classify_names() {

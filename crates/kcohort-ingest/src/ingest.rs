@@ -13,7 +13,7 @@ use crate::table::{TableRun, rows_for};
 use crate::timestamp::{Resolved, SiteClock, SiteZone, format_instant, parse_written};
 use chrono::Datelike;
 use csv::ByteRecord;
-use kcohort_model::manifest::{IngestRecord, StoredFile, StoredTable, TableCounts};
+use kcohort_model::manifest::{IngestRecord, StoredFile, StoredTable};
 use kcohort_model::store_layout::{rejects_file, table_file};
 use kcohort_model::store_schema::stored_schema;
 use kcohort_model::{ColumnKind, Manifest, RejectReason, TableName};
@@ -535,9 +535,4 @@ fn scan_latest_time(extract: &Extract, zone: SiteZone) -> Result<Option<i64>, In
         }
     }
     Ok(latest)
-}
-
-/// Check the reconciliation identity of every table of an ingest record.
-pub fn reconciles(counts: &BTreeMap<String, TableCounts>) -> bool {
-    counts.values().all(TableCounts::reconciles)
 }

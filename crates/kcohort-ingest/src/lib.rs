@@ -20,5 +20,5 @@ mod table;
 pub mod timestamp;
 
 pub use error::IngestError;
-pub use ingest::{IngestOptions, IngestOutcome, Mode, NoProgress, Progress, ingest, reconciles};
+pub use ingest::{IngestOptions, IngestOutcome, Mode, NoProgress, Progress, ingest};
 pub use store::{CommitStep, FailPoint};

@@ -3,15 +3,14 @@
 //! is the store's job (see `store`).
 
 use crate::IngestError;
-use crate::extract::hex;
 use arrow_array::RecordBatch;
 use arrow_schema::SchemaRef;
+use kcohort_store::HashingWriter;
 use parquet::arrow::ArrowWriter;
 use parquet::basic::{Compression, ZstdLevel};
 use parquet::file::properties::WriterProperties;
-use sha2::{Digest, Sha256};
 use std::fs::File;
-use std::io::{BufWriter, Write};
+use std::io::BufWriter;
 use std::path::{Path, PathBuf};
 use std::sync::mpsc::{Receiver, SyncSender, sync_channel};
 use std::thread::JoinHandle;
@@ -30,23 +29,7 @@ pub struct WrittenPart {
     pub sha256: String,
 }
 
-struct HashingFile {
-    inner: BufWriter<File>,
-    hasher: Sha256,
-    bytes: u64,
-}
-
-impl Write for HashingFile {
-    fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
-        let n = self.inner.write(buf)?;
-        self.hasher.update(&buf[..n]);
-        self.bytes += n as u64;
-        Ok(n)
-    }
-    fn flush(&mut self) -> std::io::Result<()> {
-        self.inner.flush()
-    }
-}
+type HashingFile = HashingWriter<BufWriter<File>>;
 
 pub fn writer_properties() -> WriterProperties {
     WriterProperties::builder()
@@ -76,11 +59,7 @@ impl PartWriter {
         std::fs::create_dir_all(dir).map_err(|e| IngestError::io(dir, e))?;
         let temp_path = root.join(kcohort_model::store_layout::temp_name(relative));
         let file = File::create(&temp_path).map_err(|e| IngestError::io(&temp_path, e))?;
-        let sink = HashingFile {
-            inner: BufWriter::with_capacity(1 << 20, file),
-            hasher: Sha256::new(),
-            bytes: 0,
-        };
+        let sink = HashingWriter::new(BufWriter::with_capacity(1 << 20, file));
         let writer = ArrowWriter::try_new(sink, schema, Some(writer_properties()))?;
         Ok(PartWriter {
             temp_path,
@@ -99,11 +78,7 @@ impl PartWriter {
     pub fn finish(self) -> Result<WrittenPart, IngestError> {
         // `into_inner` flushes the last row group and writes the footer.
         let sink = self.writer.into_inner()?;
-        let HashingFile {
-            inner,
-            hasher,
-            bytes,
-        } = sink;
+        let (inner, bytes, sha256) = sink.finish();
         let file = inner
             .into_inner()
             .map_err(|e| IngestError::io(&self.temp_path, e.into_error()))?;
@@ -114,7 +89,7 @@ impl PartWriter {
             relative: self.relative,
             rows: self.rows,
             bytes,
-            sha256: hex(&hasher.finalize()),
+            sha256,
         })
     }
 }

@@ -57,10 +57,6 @@ impl<'a> RowCheck<'a> {
         }
     }
 
-    pub fn has_failed(&self) -> bool {
-        self.reject.is_some()
-    }
-
     /// Whether a rule earlier than `reason` (or `reason` itself) has already failed, so checking it
     /// cannot change the verdict.
     pub fn failed_before(&self, reason: RejectReason) -> bool {

@@ -132,22 +132,8 @@ pub fn commit(
 /// Remove files under the store's data folders that the manifest does not list.
 pub fn remove_unlisted(root: &Path, manifest: &Manifest) -> Result<(), IngestError> {
     let listed: HashSet<PathBuf> = manifest.all_files().map(|f| root.join(&f.path)).collect();
-    for top in [TABLES_DIR, REJECTS_DIR, DERIVED_DIR] {
-        let mut stack = vec![root.join(top)];
-        while let Some(dir) = stack.pop() {
-            let Ok(entries) = std::fs::read_dir(&dir) else {
-                continue;
-            };
-            for entry in entries.flatten() {
-                let path = entry.path();
-                if path.is_dir() {
-                    stack.push(path);
-                } else if !listed.contains(&path) {
-                    std::fs::remove_file(&path).map_err(|e| IngestError::io(&path, e))?;
-                }
-            }
-        }
-    }
+    kcohort_store::remove_unlisted(root, &[TABLES_DIR, REJECTS_DIR, DERIVED_DIR], &listed)
+        .map_err(|(path, e)| IngestError::io(path, e))?;
     let stray = root.join(format!("{TEMP_PREFIX}{MANIFEST_FILE}"));
     if stray.exists() {
         std::fs::remove_file(&stray).map_err(|e| IngestError::io(&stray, e))?;
