@@ -5,6 +5,7 @@ mod command;
 mod failure;
 mod progress_bar;
 mod summary;
+mod table_output;
 
 use clap::Parser;
 

@@ -37,6 +37,41 @@ pub const DEFINITIONS: &[Definition] = &[
         file: "potassium_quality.sql",
         sql: include_str!("../../../queries/potassium_quality.sql"),
     },
+    Definition {
+        table: "exposure_eras",
+        file: "exposure_eras.sql",
+        sql: include_str!("../../../queries/exposure_eras.sql"),
+    },
+    Definition {
+        table: "kidney_function",
+        file: "kidney_function.sql",
+        sql: include_str!("../../../queries/kidney_function.sql"),
+    },
+    Definition {
+        table: "lab_conditions",
+        file: "lab_conditions.sql",
+        sql: include_str!("../../../queries/lab_conditions.sql"),
+    },
+    Definition {
+        table: "episode_causes",
+        file: "episode_causes.sql",
+        sql: include_str!("../../../queries/episode_causes.sql"),
+    },
+    Definition {
+        table: "episode_cause_summary",
+        file: "episode_cause_summary.sql",
+        sql: include_str!("../../../queries/episode_cause_summary.sql"),
+    },
+    Definition {
+        table: "episode_treatments",
+        file: "episode_treatments.sql",
+        sql: include_str!("../../../queries/episode_treatments.sql"),
+    },
+    Definition {
+        table: "episode_outcomes",
+        file: "episode_outcomes.sql",
+        sql: include_str!("../../../queries/episode_outcomes.sql"),
+    },
 ];
 
 fn query_error(definition: &str, e: datafusion::error::DataFusionError) -> EngineError {
@@ -236,11 +271,12 @@ fn has_subtraction(operand: &[Token]) -> bool {
     })
 }
 
-/// An interval literal or a `$..._hours` window parameter.
+/// An interval literal or a `$..._hours` / `$..._days` window parameter.
 fn has_window(operand: &[Token]) -> bool {
     operand.iter().enumerate().any(|(k, tok)| {
         tok.text == "interval"
-            || (tok.text.starts_with('$') && tok.text.ends_with("_hours"))
+            || (tok.text.starts_with('$')
+                && (tok.text.ends_with("_hours") || tok.text.ends_with("_days")))
             || (k > 0 && operand[k - 1].text == "interval")
     })
 }

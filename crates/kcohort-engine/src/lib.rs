@@ -11,12 +11,16 @@
 //! - [`definition`]: the embedded definitions and how one runs; the time-window lint.
 //! - [`parameter`]: the typed parameter layer.
 //! - [`derive`]: `kcohort derive` — fingerprint, run, commit.
+//! - `udf`, `kidney_udf`: the SQL functions (CTCAE grade, ATC prefix match, CKD-EPI 2021 eGFR,
+//!   KDIGO GFR category and AKI stage).
 
 pub mod definition;
 pub mod derive;
 mod derived_output;
 mod error;
+mod kidney_udf;
 pub mod parameter;
+pub mod read_only;
 pub mod session;
 pub mod udf;
 
@@ -24,4 +28,5 @@ pub use definition::{DEFINITIONS, Definition};
 pub use derive::{DeriveOutcome, DerivedTableReport, derive, derive_async, read_manifest};
 pub use error::EngineError;
 pub use parameter::{ParamValue, Parameters};
+pub use read_only::{QueryLimits, QueryResult, check_read_only, query};
 pub use session::{EngineOptions, register_store, session};

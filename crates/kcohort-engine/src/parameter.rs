@@ -6,6 +6,8 @@
 //! day or month part (so the DataFusion 55 comparison bug cannot bite, ECOSYSTEM.md §3), instants
 //! are UTC microseconds, and code lists are quoted codes checked to consist only of letters,
 //! digits, `.`, `-` and `_`. Text from a study file therefore never reaches the SQL as text.
+//! A window `$name` is also available as `$name_us`, its whole microseconds as a `BIGINT`, for
+//! definitions that do their time arithmetic in epoch microseconds (`CAST(t AS BIGINT)`).
 //! `$` inside string literals, quoted identifiers and comments is left alone; an unknown name,
 //! or a positional `$1`, is an error naming the definition.
 //!
@@ -27,9 +29,18 @@ pub enum ParamValue {
     Micros(i64),
     /// An instant, UTC microseconds since the epoch.
     Instant(i64),
+    /// A whole number (`CAST(<n> AS BIGINT)`).
+    Int(i64),
     /// A non-empty list of codes (LOINC, ATC): written as `'a', 'b'` for `IN (...)` lists and
     /// variadic functions.
     Codes(Vec<String>),
+    /// A small table of literals, written as a subquery over `VALUES` with named columns
+    /// (the study's code sets: one row per class and code prefix). Every cell is itself a
+    /// [`ParamValue`], so it is written by the same rules.
+    Table {
+        columns: Vec<&'static str>,
+        rows: Vec<Vec<ParamValue>>,
+    },
 }
 
 /// Hours as whole microseconds (windows are elapsed time).
@@ -48,6 +59,7 @@ impl ParamValue {
             ParamValue::Number(x) if x.is_finite() => Ok(format!("CAST({x:?} AS DOUBLE)")),
             ParamValue::Number(x) => Err(format!("{x} is not a finite number")),
             ParamValue::Micros(us) => Ok(format!("INTERVAL '{us} microseconds'")),
+            ParamValue::Int(n) => Ok(format!("CAST({n} AS BIGINT)")),
             ParamValue::Instant(us) => Ok(format!(
                 "arrow_cast(CAST({us} AS BIGINT), 'Timestamp(Microsecond, Some(\"UTC\"))')"
             )),
@@ -69,9 +81,54 @@ impl ParamValue {
                 }
                 Ok(out)
             }
+            ParamValue::Table { columns, rows } => {
+                if rows.is_empty() {
+                    return Err("an empty table".into());
+                }
+                let mut out = String::from("(SELECT ");
+                for (i, c) in columns.iter().enumerate() {
+                    if !c.chars().all(|ch| ch.is_ascii_lowercase() || ch == '_') {
+                        return Err(format!("column name `{c}`"));
+                    }
+                    if i > 0 {
+                        out.push_str(", ");
+                    }
+                    write!(out, "column{} AS {c}", i + 1).expect("write to a String");
+                }
+                out.push_str(" FROM (VALUES ");
+                for (r, row) in rows.iter().enumerate() {
+                    if row.len() != columns.len() {
+                        return Err(format!("row {} has {} cells", r + 1, row.len()));
+                    }
+                    if r > 0 {
+                        out.push_str(", ");
+                    }
+                    out.push('(');
+                    for (i, cell) in row.iter().enumerate() {
+                        if matches!(cell, ParamValue::Table { .. }) {
+                            return Err("a table inside a table".into());
+                        }
+                        if i > 0 {
+                            out.push_str(", ");
+                        }
+                        out.push_str(&cell.to_sql()?);
+                    }
+                    out.push(')');
+                }
+                out.push_str("))");
+                Ok(out)
+            }
         }
     }
 }
+
+/// A one-code literal (a class name or one ATC prefix; checked like every code).
+fn code(text: &str) -> ParamValue {
+    ParamValue::Codes(vec![text.to_string()])
+}
+
+/// Longest window a missing per-class limit stands for: 100 years.
+const NO_LIMIT_HOURS: f64 = 876_000.0;
 
 /// The named parameters of one derive run.
 #[derive(Debug, Clone, Default, PartialEq)]
@@ -147,6 +204,7 @@ impl Parameters {
             );
         }
         p.insert("extract_end", ParamValue::Instant(extract_end_micros));
+        context_parameters(&mut p, study);
         p
     }
 
@@ -199,13 +257,22 @@ impl Parameters {
                             "`${name}`: parameters are named (`$high_above`), never positional"
                         )));
                     }
-                    let value = self.values.get(name).ok_or_else(|| {
-                        let known: Vec<&str> = self.names().collect();
-                        fail(format!(
-                            "unknown parameter `${name}`; known: {}",
-                            known.join(", ")
-                        ))
-                    })?;
+                    let as_micros =
+                        name.strip_suffix("_us")
+                            .and_then(|base| match self.values.get(base) {
+                                Some(ParamValue::Micros(us)) => Some(ParamValue::Int(*us)),
+                                _ => None,
+                            });
+                    let value = as_micros
+                        .as_ref()
+                        .or(self.values.get(name))
+                        .ok_or_else(|| {
+                            let known: Vec<&str> = self.names().collect();
+                            fail(format!(
+                                "unknown parameter `${name}`; known: {}",
+                                known.join(", ")
+                            ))
+                        })?;
                     let literal = value
                         .to_sql()
                         .map_err(|m| fail(format!("parameter `${name}`: {m}")))?;
@@ -216,6 +283,116 @@ impl Parameters {
         }
         Ok(out)
     }
+}
+
+/// The parameters of the context definitions (eras, conditions, causes, treatments, outcomes):
+/// the keys of `[exposure]`, `[conditions]`, `[attribution]` and `[outcomes]` without their
+/// section; windows in days or hours become intervals (`$washout_days`, `$lab_window_hours`);
+/// `$drug_class_codes` (drug_class, atc_prefix, and the class's windows in microseconds:
+/// administer_us, lookback_us, started_within_us, min_exposure_us; one row per class and code), `$potassium_lowering_codes`
+/// (treatment_class, atc_prefix) and `$adrenal_icd10` (codes without their dot).
+fn context_parameters(p: &mut Parameters, study: &Study) {
+    let x = &study.exposure;
+    let k = &study.conditions;
+    let a = &study.attribution;
+    let o = &study.outcomes;
+    let days = |d: f64| ParamValue::Micros(hours_to_micros(d * 24.0));
+    let hours = |h: f64| ParamValue::Micros(hours_to_micros(h));
+    let micros = |h: f64| ParamValue::Int(hours_to_micros(h));
+    for (name, value) in [
+        ("dispense_default_days", days(x.dispense_default_days)),
+        (
+            "administer_default_hours",
+            hours(x.administer_default_hours),
+        ),
+        ("order_default_hours", hours(x.order_default_hours)),
+        ("dispense_grace_days", days(x.dispense_grace_days)),
+        ("administer_grace_hours", hours(x.administer_grace_hours)),
+        ("washout_days", days(x.washout_days)),
+        (
+            "aki_absolute_window_hours",
+            hours(k.aki_absolute_window_hours),
+        ),
+        ("aki_baseline_days", days(k.aki_baseline_days)),
+        ("tls_window_hours", hours(k.tls_window_hours)),
+        ("drug_lookback_hours", hours(a.drug_lookback_hours)),
+        ("aki_before_hours", hours(a.aki_before_hours)),
+        ("aki_after_hours", hours(a.aki_after_hours)),
+        ("lab_window_hours", hours(a.lab_window_hours)),
+        ("baseline_egfr_days", days(a.baseline_egfr_days)),
+        ("treatment_window_hours", hours(o.treatment_window_hours)),
+        (
+            "hypoglycemia_window_hours",
+            hours(o.hypoglycemia_window_hours),
+        ),
+        ("death_within_days", days(o.death_within_days)),
+    ] {
+        p.insert(name, value);
+    }
+    for (name, value) in [
+        ("aki_absolute_rise_mg_dl", k.aki_absolute_rise_mg_dl),
+        ("aki_ratio", k.aki_ratio),
+        ("aki_stage3_creatinine_mg_dl", k.aki_stage3_creatinine_mg_dl),
+        ("hyperglycemia_above_mg_dl", k.hyperglycemia_above_mg_dl),
+        ("acidosis_bicarbonate_below", k.acidosis_bicarbonate_below),
+        ("hyperosmolality_above", k.hyperosmolality_above),
+        ("ck_upper_normal_limit", k.ck_upper_normal_limit),
+        ("rhabdomyolysis_ck_multiple", k.rhabdomyolysis_ck_multiple),
+        ("tls_urate_mg_dl", k.tls_urate_mg_dl),
+        ("tls_potassium", k.tls_potassium),
+        ("tls_phosphate_mg_dl", k.tls_phosphate_mg_dl),
+        ("tls_calcium_mg_dl", k.tls_calcium_mg_dl),
+        ("ckd_egfr_below", a.ckd_egfr_below),
+        ("hypoglycemia_below_mg_dl", o.hypoglycemia_below_mg_dl),
+    ] {
+        p.insert(name, ParamValue::Number(value));
+    }
+    for (analyte, codes) in study.lab_loinc_sets() {
+        p.insert(&format!("{analyte}_loinc"), ParamValue::Codes(codes));
+    }
+    p.insert(
+        "adrenal_icd10",
+        ParamValue::Codes(a.adrenal_icd10.iter().map(|c| c.replace('.', "")).collect()),
+    );
+    let mut drug_rows = Vec::new();
+    for (class, set) in &study.drug_classes {
+        for prefix in &set.atc {
+            drug_rows.push(vec![
+                code(class),
+                code(prefix),
+                micros(set.administer_hours.unwrap_or(x.administer_default_hours)),
+                micros(set.lookback_hours.unwrap_or(a.drug_lookback_hours)),
+                micros(24.0 * set.started_within_days.unwrap_or(NO_LIMIT_HOURS / 24.0)),
+                micros(24.0 * set.min_exposure_days.unwrap_or(0.0)),
+            ]);
+        }
+    }
+    p.insert(
+        "drug_class_codes",
+        ParamValue::Table {
+            columns: vec![
+                "drug_class",
+                "atc_prefix",
+                "administer_us",
+                "lookback_us",
+                "started_within_us",
+                "min_exposure_us",
+            ],
+            rows: drug_rows,
+        },
+    );
+    let treatment_rows = study
+        .potassium_lowering
+        .iter()
+        .flat_map(|(class, set)| set.atc.iter().map(move |c| vec![code(class), code(c)]))
+        .collect();
+    p.insert(
+        "potassium_lowering_codes",
+        ParamValue::Table {
+            columns: vec!["treatment_class", "atc_prefix"],
+            rows: treatment_rows,
+        },
+    );
 }
 
 #[cfg(test)]
@@ -290,6 +467,40 @@ mod tests {
         assert!(bad.bind("t", "$n").is_err());
         bad.insert("e", ParamValue::Codes(vec![]));
         assert!(bad.bind("t", "$e").is_err());
+    }
+
+    #[test]
+    fn a_window_is_also_its_microseconds() {
+        check("t > $gap_hours_us", "t > CAST(604800000000 AS BIGINT)");
+        assert!(params().bind("t", "$cut_us").is_err());
+    }
+
+    #[test]
+    fn binds_a_table_of_literals() {
+        let mut p = Parameters::new();
+        p.insert(
+            "t",
+            ParamValue::Table {
+                columns: vec!["class", "window"],
+                rows: vec![
+                    vec![code("mra"), ParamValue::Micros(1)],
+                    vec![code("arb"), ParamValue::Micros(2)],
+                ],
+            },
+        );
+        assert_eq!(
+            p.bind("d", "SELECT * FROM $t").unwrap(),
+            "SELECT * FROM (SELECT column1 AS class, column2 AS window FROM (VALUES \
+             ('mra', INTERVAL '1 microseconds'), ('arb', INTERVAL '2 microseconds')))"
+        );
+        p.insert(
+            "bad",
+            ParamValue::Table {
+                columns: vec!["c"],
+                rows: vec![vec![code("x'y")]],
+            },
+        );
+        assert!(p.bind("d", "$bad").is_err());
     }
 
     #[test]

@@ -16,6 +16,9 @@ pub fn udfs() -> Vec<ScalarUDF> {
     vec![
         ScalarUDF::from(CtcaeHyperkalemiaGrade::new()),
         ScalarUDF::from(AtcMatchesAny::new()),
+        ScalarUDF::from(crate::kidney_udf::CkdEpi2021::new()),
+        ScalarUDF::from(crate::kidney_udf::KdigoGfrCategory::new()),
+        ScalarUDF::from(crate::kidney_udf::KdigoAkiStage::new()),
     ]
 }
 

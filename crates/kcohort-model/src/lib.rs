@@ -9,11 +9,13 @@
 pub mod analyte;
 pub mod code;
 pub mod contract;
+pub mod kidney;
 pub mod manifest;
 pub mod reject;
 pub mod store_layout;
 pub mod store_schema;
 pub mod study;
+pub mod study_rules;
 
 pub use analyte::{Analyte, UnitConversion};
 pub use contract::{ColumnKind, ColumnSpec, TableName, TimeRole};

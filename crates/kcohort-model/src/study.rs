@@ -7,7 +7,9 @@
 //! Sources of the defaults: issue 3 of the project (the default episode definition) and
 //! `DOMAIN.md` §1–2 (thresholds, LOINC codes, ATC classes, each tagged there with its source).
 
+use crate::analyte::Analyte;
 use crate::code::{is_valid_atc, is_valid_loinc};
+pub use crate::study_rules::{Attribution, Conditions, Exposure, Outcomes};
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
 use std::fmt;
@@ -22,8 +24,15 @@ pub struct Study {
     /// Potassium-lowering treatment classes; their union is the treatment set of the
     /// pseudohyperkalemia rule.
     pub potassium_lowering: BTreeMap<String, CodeSet>,
-    /// Drug classes that can raise potassium (cause attribution, later definitions).
-    pub drug_classes: BTreeMap<String, CodeSet>,
+    /// Drug classes that can raise potassium (exposure eras, cause attribution).
+    pub drug_classes: BTreeMap<String, DrugClass>,
+    /// LOINC codes per co-analyte (`creatinine`, `glucose`, ...) for the lab-derived
+    /// conditions; an analyte left out takes every code kcohort interprets for it.
+    pub lab_loinc: BTreeMap<String, Vec<String>>,
+    pub exposure: Exposure,
+    pub conditions: Conditions,
+    pub attribution: Attribution,
+    pub outcomes: Outcomes,
 }
 
 /// Where the data come from.
@@ -80,6 +89,72 @@ pub struct CodeSet {
     pub atc: Vec<String>,
 }
 
+/// The co-analytes the lab-derived definitions read, with a LOINC set each in `[lab_loinc]`.
+pub const LAB_ANALYTES: &[Analyte] = &[
+    Analyte::Creatinine,
+    Analyte::Glucose,
+    Analyte::Bicarbonate,
+    Analyte::Sodium,
+    Analyte::Chloride,
+    Analyte::UreaNitrogen,
+    Analyte::CreatineKinase,
+    Analyte::Urate,
+    Analyte::Phosphate,
+    Analyte::Calcium,
+    Analyte::Albumin,
+];
+
+/// A drug class that can raise potassium: its ATC codes or prefixes, and the windows of its
+/// cause attribution where they differ from the study-wide ones.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct DrugClass {
+    pub label: String,
+    pub atc: Vec<String>,
+    /// Counts as a cause when an era ended at most this many hours before onset (default:
+    /// `attribution.drug_lookback_hours`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub lookback_hours: Option<f64>,
+    /// Counts only when the era started at most this many days before onset.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub started_within_days: Option<f64>,
+    /// Counts only when the era had lasted at least this many days at onset.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub min_exposure_days: Option<f64>,
+    /// An administration without end_at covers this many hours (default:
+    /// `exposure.administer_default_hours`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub administer_hours: Option<f64>,
+}
+
+impl DrugClass {
+    fn new(label: &str, atc: &[&str]) -> DrugClass {
+        DrugClass {
+            label: label.into(),
+            atc: atc.iter().map(|c| c.to_string()).collect(),
+            lookback_hours: None,
+            started_within_days: None,
+            min_exposure_days: None,
+            administer_hours: None,
+        }
+    }
+
+    fn started_within(mut self, days: f64) -> DrugClass {
+        self.started_within_days = Some(days);
+        self
+    }
+
+    fn min_exposure(mut self, days: f64) -> DrugClass {
+        self.min_exposure_days = Some(days);
+        self
+    }
+
+    fn lookback(mut self, hours: f64) -> DrugClass {
+        self.lookback_hours = Some(hours);
+        self
+    }
+}
+
 impl Default for Potassium {
     fn default() -> Self {
         Potassium {
@@ -128,56 +203,63 @@ pub fn default_potassium_lowering() -> BTreeMap<String, CodeSet> {
 }
 
 /// Drug classes that can raise potassium (DOMAIN.md §2.1).
-pub fn default_drug_classes() -> BTreeMap<String, CodeSet> {
+pub fn default_drug_classes() -> BTreeMap<String, DrugClass> {
     [
         (
             "ace_inhibitor",
-            code_set("ACE inhibitors", &["C09A", "C09B"]),
+            DrugClass::new("ACE inhibitors", &["C09A", "C09B"]),
         ),
         (
             "arb",
-            code_set("angiotensin receptor blockers", &["C09C", "C09D"]),
+            DrugClass::new("angiotensin receptor blockers", &["C09C", "C09D"]),
         ),
         (
             "renin_inhibitor",
-            code_set(
+            DrugClass::new(
                 "direct renin inhibitor",
                 &["C09XA02", "C09XA52", "C09XA53", "C09XA54"],
             ),
         ),
         (
             "mra",
-            code_set("mineralocorticoid receptor antagonists", &["C03DA"]),
+            DrugClass::new("mineralocorticoid receptor antagonists", &["C03DA"]),
         ),
         (
             "potassium_sparing",
-            code_set("ENaC blockers", &["C03DB", "C03EA", "C03EB"]),
+            DrugClass::new("ENaC blockers", &["C03DB", "C03EA", "C03EB"]),
         ),
-        ("beta_blocker", code_set("beta blockers", &["C07"])),
+        ("beta_blocker", DrugClass::new("beta blockers", &["C07"])),
         (
             "trimethoprim",
-            code_set("trimethoprim", &["J01EA01", "J01EE01"]),
+            DrugClass::new("trimethoprim", &["J01EA01", "J01EE01"]).started_within(14.0),
         ),
-        ("heparin", code_set("heparins", &["B01AB"])),
+        (
+            "heparin",
+            DrugClass::new("heparins", &["B01AB"]).min_exposure(3.0),
+        ),
         (
             "calcineurin_inhibitor",
-            code_set("calcineurin inhibitors", &["L04AD01", "L04AD02"]),
+            DrugClass::new("calcineurin inhibitors", &["L04AD01", "L04AD02"]),
         ),
-        ("nsaid", code_set("NSAIDs", &["M01A"])),
+        ("nsaid", DrugClass::new("NSAIDs", &["M01A"])),
         (
             "digoxin",
-            code_set("digitalis glycosides", &["C01AA05", "C01AA04"]),
+            DrugClass::new("digitalis glycosides", &["C01AA05", "C01AA04"]),
         ),
         (
             "potassium",
-            code_set(
+            DrugClass::new(
                 "potassium supplements and IV potassium",
                 &["A12BA", "B05XA01", "B05XA06", "B05XA15", "B05XA17"],
-            ),
+            )
+            .lookback(48.0),
         ),
-        ("succinylcholine", code_set("suxamethonium", &["M03AB01"])),
-        ("pentamidine", code_set("pentamidine", &["P01CX01"])),
-        ("drospirenone", code_set("drospirenone", &["G03AA12"])),
+        (
+            "succinylcholine",
+            DrugClass::new("suxamethonium", &["M03AB01"]).lookback(1.0),
+        ),
+        ("pentamidine", DrugClass::new("pentamidine", &["P01CX01"])),
+        ("drospirenone", DrugClass::new("drospirenone", &["G03AA12"])),
     ]
     .into_iter()
     .map(|(k, v)| (k.to_string(), v))
@@ -192,6 +274,17 @@ impl Default for Study {
             episode: EpisodeParameters::default(),
             potassium_lowering: default_potassium_lowering(),
             drug_classes: default_drug_classes(),
+            lab_loinc: LAB_ANALYTES
+                .iter()
+                .map(|a| {
+                    let codes = a.loinc_codes().iter().map(|c| c.to_string()).collect();
+                    (a.as_str().to_string(), codes)
+                })
+                .collect(),
+            exposure: Exposure::default(),
+            conditions: Conditions::default(),
+            attribution: Attribution::default(),
+            outcomes: Outcomes::default(),
         }
     }
 }
@@ -314,11 +407,17 @@ atc = ["C07"]
 # Trimethoprim and co-trimoxazole.
 label = "trimethoprim"
 atc = ["J01EA01", "J01EE01"]
+# Its effect starts within days of the first dose: counts only when the era started at most 14
+# days before onset (DOMAIN.md section 2.1, from memory).
+started_within_days = 14
 
 [drug_classes.heparin]
 # Heparin and low-molecular-weight heparins.
 label = "heparins"
 atc = ["B01AB"]
+# They suppress aldosterone after some days: count only after 3 days of continuous exposure
+# (DOMAIN.md section 2.1, from memory).
+min_exposure_days = 3
 
 [drug_classes.calcineurin_inhibitor]
 # Ciclosporin, tacrolimus (systemic; topical tacrolimus D11AH01 is not included).
@@ -340,11 +439,15 @@ atc = ["C01AA05", "C01AA04"]
 # Electrolyte solutions B05BB are left out: most carry little potassium.
 label = "potassium supplements and IV potassium"
 atc = ["A12BA", "B05XA01", "B05XA06", "B05XA15", "B05XA17"]
+# Iatrogenic: given within 48 h before onset (common practice).
+lookback_hours = 48
 
 [drug_classes.succinylcholine]
 # Suxamethonium.
 label = "suxamethonium"
 atc = ["M03AB01"]
+# Peri-anaesthetic: given within 1 h before onset (DOMAIN.md section 2.1, from memory).
+lookback_hours = 1
 
 [drug_classes.pentamidine]
 # Pentamidine.
@@ -355,6 +458,134 @@ atc = ["P01CX01"]
 # Drospirenone with ethinylestradiol.
 label = "drospirenone"
 atc = ["G03AA12"]
+
+[lab_loinc]
+# LOINC codes of the co-analytes the lab-derived conditions read. An analyte left out takes every
+# code kcohort converts for it (docs/input-contract.md); a code listed must be one of those.
+creatinine = ["2160-0", "14682-9", "38483-4", "59826-8"]
+# Glucose: serum/plasma mass and moles, blood mass and moles.
+glucose = ["2345-7", "2339-0", "15074-8", "14749-6"]
+# Bicarbonate and total CO2.
+bicarbonate = ["1963-8", "2028-9"]
+# Sodium: serum/plasma, blood, arterial, venous.
+sodium = ["2951-2", "2947-0", "32717-1", "39791-9"]
+# Chloride: serum/plasma, blood.
+chloride = ["2075-0", "2069-3"]
+# Urea nitrogen: serum/plasma, blood.
+urea_nitrogen = ["3094-0", "6299-2"]
+# Creatine kinase.
+creatine_kinase = ["2157-6"]
+# Urate: mass and moles.
+urate = ["3084-1", "14933-6"]
+# Phosphate: mass and moles.
+phosphate = ["2777-1", "14879-1"]
+# Calcium: mass and moles.
+calcium = ["17861-6", "2000-8"]
+# Albumin (for the corrected calcium of tumour lysis).
+albumin = ["1751-7"]
+
+[exposure]
+# How medication events become exposure eras (queries/exposure_eras.sql). Every event of a
+# class covers an interval: a dispensing start_at + days_supply days, an administration or an
+# order start_at to end_at. Intervals of one class merge into one era across gaps up to the
+# grace period (the permissible-gap method, common practice; DOMAIN.md section 4).
+# A dispensing without days_supply covers this many days. Allowed: 0 to 3650.
+dispense_default_days = 30
+# An administration without end_at covers this many hours (a class may set administer_hours).
+# Allowed: 0 to 87600.
+administer_default_hours = 24
+# An order without end_at covers this many hours. Allowed: 0 to 87600.
+order_default_hours = 24
+# Gap after a dispensing that still continues the era, in days. Allowed: 0 to 3650.
+dispense_grace_days = 30
+# Gap after an administration or an order that still continues the era, in hours.
+# Allowed: 0 to 87600.
+administer_grace_hours = 24
+# New user: no era of the class ended within this many days before the era starts, and the
+# patient was observed (an encounter or a lab result) at least this long before it.
+# Allowed: 0 to 3650.
+washout_days = 365
+
+[conditions]
+# Lab-derived conditions (queries/kidney_function.sql, queries/lab_conditions.sql), in the
+# store's canonical units: mg/dL for creatinine, glucose, urea nitrogen, urate, phosphate and
+# calcium; mmol/L for potassium, sodium, chloride and bicarbonate; U/L for creatine kinase.
+# KDIGO 2012 AKI by creatinine: a rise of at least this over the lowest creatinine in the
+# window below (mg/dL). Allowed: above 0, at most 20.
+aki_absolute_rise_mg_dl = 0.3
+# The window of that rise, hours before the result. Allowed: above 0, at most 8760.
+aki_absolute_window_hours = 48
+# KDIGO 2012 AKI: creatinine at least this many times the baseline. Allowed: above 0, at most 20.
+aki_ratio = 1.5
+# The baseline: the lowest creatinine in this many days before the result. Allowed: above 0,
+# at most 365.
+aki_baseline_days = 7
+# KDIGO 2012 stage 3: creatinine at or above this (mg/dL) during an AKI. Allowed: above 0,
+# at most 30.
+aki_stage3_creatinine_mg_dl = 4.0
+# Hyperglycemia: glucose strictly above this (mg/dL; 250 = 13.9 mmol/L). Allowed: above 0, at
+# most 2000.
+hyperglycemia_above_mg_dl = 250
+# Metabolic acidosis: bicarbonate strictly below this (mmol/L). Allowed: above 0, at most 60.
+acidosis_bicarbonate_below = 22
+# Hyperosmolality: calculated osmolality 2 Na + glucose/18 + urea nitrogen/2.8 strictly above
+# this (mOsm/kg). Allowed: above 0, at most 500.
+hyperosmolality_above = 320
+# Upper limit of normal of creatine kinase (U/L; laboratory-specific). Allowed: above 0, at most
+# 10000.
+ck_upper_normal_limit = 200
+# Rhabdomyolysis: CK at or above this many times its upper limit of normal. Allowed: above 0, at
+# most 1000.
+rhabdomyolysis_ck_multiple = 5
+# Laboratory tumour lysis (Cairo-Bishop 2004, absolute criteria): at least two of urate, potassium,
+# phosphate at or above and corrected calcium at or below these within tls_window_hours.
+# Urate (mg/dL). Allowed: above 0, at most 50.
+tls_urate_mg_dl = 8.0
+# Potassium (mmol/L). Allowed: above 0, at most 12.
+tls_potassium = 6.0
+# Phosphate (mg/dL; adults). Allowed: above 0, at most 50.
+tls_phosphate_mg_dl = 4.5
+# Calcium corrected for albumin (mg/dL). Allowed: above 0, at most 20.
+tls_calcium_mg_dl = 7.0
+# Window of the two abnormalities (hours; 24 after Howard et al. 2011). Allowed: above 0, at
+# most 8760.
+tls_window_hours = 24
+
+[attribution]
+# Which context of an episode's onset counts as a cause (queries/episode_causes.sql).
+# A drug class counts when one of its eras is active at onset or ended at most this many hours
+# before it (a class may set lookback_hours). Allowed: 0 to 87600.
+drug_lookback_hours = 168
+# AKI counts when a creatinine result meeting the AKI criteria lies from this many hours before
+# onset ... Allowed: 0 to 87600.
+aki_before_hours = 168
+# ... to this many hours after it. Allowed: 0 to 87600.
+aki_after_hours = 24
+# Hyperglycemia, acidosis, hyperosmolality, rhabdomyolysis and tumour lysis count within this
+# many hours before or after onset. Allowed: 0 to 87600.
+lab_window_hours = 24
+# Baseline eGFR: the median CKD-EPI 2021 eGFR of the creatinine results in this many days up to
+# onset. Allowed: 0 to 3650.
+baseline_egfr_days = 365
+# Baseline eGFR strictly below this counts as a cause (45: KDIGO G3b or worse).
+# Allowed: 0 to 200.
+ckd_egfr_below = 45
+# ICD-10 codes or prefixes of adrenal insufficiency and hypoaldosteronism (DOMAIN.md section
+# 2.8): counted when recorded before onset or on the encounter of the onset.
+adrenal_icd10 = ["E27.1", "E27.2", "E27.3", "E27.4", "N25.8"]
+
+[outcomes]
+# Treatments and outcomes after onset (queries/episode_treatments.sql, episode_outcomes.sql).
+# Potassium-lowering administrations from onset to this many hours after it. Allowed: above 0, at
+# most 87600.
+treatment_window_hours = 12
+# Hypoglycemia after insulin: glucose strictly below this (mg/dL; 70 = 3.9 mmol/L). Allowed:
+# above 0, at most 200.
+hypoglycemia_below_mg_dl = 70
+# ... within this many hours after an insulin administration. Allowed: above 0, at most 87600.
+hypoglycemia_window_hours = 6
+# Death within this many days of onset. Allowed: above 0, at most 3650.
+death_within_days = 30
 "#;
 
 /// One value out of its allowed range.
@@ -417,7 +648,7 @@ const MAX_GAP_LIMIT_HOURS: f64 = 87_600.0;
 const WINDOW_LIMIT_HOURS: f64 = 8_760.0;
 const HEMOLYSIS_LIMIT: f64 = 10_000.0;
 
-struct Checker {
+pub(crate) struct Checker {
     problems: Vec<StudyProblem>,
 }
 
@@ -431,7 +662,7 @@ impl Checker {
     }
 
     /// `low <= value <= high` (or `low < value` when `low_open`).
-    fn range(&mut self, key: &str, value: f64, low: f64, low_open: bool, high: f64) {
+    pub(crate) fn range(&mut self, key: &str, value: f64, low: f64, low_open: bool, high: f64) {
         let low_ok = if low_open { value > low } else { value >= low };
         if !value.is_finite() || !low_ok || value > high {
             let from = if low_open {
@@ -457,26 +688,51 @@ impl Checker {
         }
     }
 
-    fn code_sets(&mut self, section: &str, sets: &BTreeMap<String, CodeSet>) {
-        if sets.is_empty() {
+    fn code_sets<'a>(
+        &mut self,
+        section: &str,
+        sets: impl ExactSizeIterator<Item = (&'a String, &'a str, &'a [String])>,
+    ) {
+        if sets.len() == 0 {
             self.fail(section, "no classes", "at least one class");
         }
-        for (name, set) in sets {
+        for (name, label, atc) in sets {
             let key = format!("{section}.{name}");
             self.name(&key, name);
-            if set.label.trim().is_empty() {
+            if label.trim().is_empty() {
                 self.fail(&format!("{key}.label"), "\"\"", "a non-empty label");
             }
             self.codes(
                 &format!("{key}.atc"),
-                &set.atc,
+                atc,
                 is_valid_atc,
                 "WHO ATC code or prefix (C, C09, C09A, C09AA, C09AA02)",
             );
         }
     }
 
-    fn codes(&mut self, key: &str, codes: &[String], valid: fn(&str) -> bool, what: &str) {
+    fn drug_class_windows(&mut self, classes: &BTreeMap<String, DrugClass>) {
+        for (name, class) in classes {
+            for (field, value, high) in [
+                ("lookback_hours", class.lookback_hours, 87_600.0),
+                ("started_within_days", class.started_within_days, 3_650.0),
+                ("min_exposure_days", class.min_exposure_days, 3_650.0),
+                ("administer_hours", class.administer_hours, 87_600.0),
+            ] {
+                if let Some(v) = value {
+                    self.range(&format!("drug_classes.{name}.{field}"), v, 0.0, false, high);
+                }
+            }
+        }
+    }
+
+    pub(crate) fn codes(
+        &mut self,
+        key: &str,
+        codes: &[String],
+        valid: impl Fn(&str) -> bool,
+        what: &str,
+    ) {
         if codes.is_empty() {
             self.fail(key, "[]", format!("at least one {what}"));
         }
@@ -602,14 +858,75 @@ impl Study {
             );
         }
 
-        c.code_sets("potassium_lowering", &self.potassium_lowering);
-        c.code_sets("drug_classes", &self.drug_classes);
+        c.code_sets(
+            "potassium_lowering",
+            self.potassium_lowering
+                .iter()
+                .map(|(k, v)| (k, v.label.as_str(), v.atc.as_slice())),
+        );
+        c.code_sets(
+            "drug_classes",
+            self.drug_classes
+                .iter()
+                .map(|(k, v)| (k, v.label.as_str(), v.atc.as_slice())),
+        );
+        c.drug_class_windows(&self.drug_classes);
+        for (name, codes) in &self.lab_loinc {
+            let key = format!("lab_loinc.{name}");
+            match LAB_ANALYTES.iter().find(|a| a.as_str() == name) {
+                None => c.fail(
+                    &key,
+                    format!("`{name}`"),
+                    format!(
+                        "one of {}",
+                        LAB_ANALYTES
+                            .iter()
+                            .map(|a| a.as_str())
+                            .collect::<Vec<_>>()
+                            .join(", ")
+                    ),
+                ),
+                Some(a) => {
+                    let known = a.loinc_codes();
+                    c.codes(
+                        &key,
+                        codes,
+                        |code| known.contains(&code),
+                        &format!("LOINC code kcohort reads as {name} ({})", known.join(", ")),
+                    );
+                }
+            }
+        }
+        crate::study_rules::validate(
+            &mut c,
+            &self.exposure,
+            &self.conditions,
+            &self.attribution,
+            &self.outcomes,
+        );
 
         if c.problems.is_empty() {
             Ok(())
         } else {
             Err(StudyError::Invalid(c.problems))
         }
+    }
+
+    /// The LOINC codes of each co-analyte the definitions read ([`LAB_ANALYTES`]): the study's
+    /// list where it has one, else every code kcohort interprets for the analyte.
+    pub fn lab_loinc_sets(&self) -> Vec<(&'static str, Vec<String>)> {
+        LAB_ANALYTES
+            .iter()
+            .map(|a| {
+                let name = a.as_str();
+                let codes = self
+                    .lab_loinc
+                    .get(name)
+                    .cloned()
+                    .unwrap_or_else(|| a.loinc_codes().iter().map(|c| c.to_string()).collect());
+                (name, codes)
+            })
+            .collect()
     }
 
     /// The ATC prefixes of every potassium-lowering class, sorted, each once.

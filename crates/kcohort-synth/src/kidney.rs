@@ -36,18 +36,6 @@ fn constants(female: bool) -> (f64, f64, f64) {
     }
 }
 
-/// KDIGO 2012 GFR category label (G1 ≥ 90, G2 60–89, G3a 45–59, G3b 30–44, G4 15–29, G5 < 15).
-pub fn gfr_category(egfr: f64) -> &'static str {
-    match egfr {
-        e if e >= 90.0 => "G1",
-        e if e >= 60.0 => "G2",
-        e if e >= 45.0 => "G3a",
-        e if e >= 30.0 => "G3b",
-        e if e >= 15.0 => "G4",
-        _ => "G5",
-    }
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -69,7 +57,7 @@ mod tests {
             let female = !male;
             let e = egfr_ckd_epi_2021(scr, age, female);
             assert!((e - expected).abs() < 0.05, "{male} {age} {scr}: {e}");
-            assert_eq!(gfr_category(e), category);
+            assert_eq!(kcohort_model::kidney::kdigo_gfr_category(e).unwrap(), category);
         }
     }
 

@@ -210,7 +210,7 @@ impl Profile {
 
     /// ICD-10 code of the patient's CKD stage, if any (N18.31 3a, N18.32 3b, N18.4, N18.5).
     pub fn ckd_code(&self) -> Option<&'static str> {
-        match kidney::gfr_category(self.egfr) {
+        match kcohort_model::kidney::kdigo_gfr_category(self.egfr).unwrap_or("G5") {
             "G3a" => Some("N18.31"),
             "G3b" => Some("N18.32"),
             "G4" => Some("N18.4"),

@@ -4,6 +4,7 @@ mod bench;
 mod derive;
 mod ingest;
 mod init_study;
+pub mod sql;
 mod stats;
 mod synth;
 
@@ -35,6 +36,8 @@ pub enum Command {
     Synth(synth::SynthArgs),
     /// Print speed and memory figures (rows/s, peak RSS) for the benchmarks.
     Bench(bench::BenchArgs),
+    /// Run one read-only SQL query over a store's tables and derived tables.
+    Sql(sql::SqlArgs),
     /// Statistics on any table of your own (CSV or Parquet): proportions, rates, ratios, survival, Cox, charts.
     Stats(stats::StatsArgs),
 }
@@ -44,6 +47,7 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Ingest(args) => ingest::run(args),
         Command::InitStudy(args) => init_study::run(args),
         Command::Derive(args) => derive::run(args),
+        Command::Sql(args) => sql::run(args),
         Command::Stats(args) => stats::run(args),
         Command::Synth(args) => synth::run(args),
         Command::Bench(args) => bench::run(args),
