@@ -13,10 +13,9 @@
 --  acute_kidney_injury (group 'kidney'): a kidney_function result with aki collected from
 --      $aki_before_hours (168) before to $aki_after_hours (24) after onset (inclusive); the
 --      evidence is the highest stage, then the earliest.
---  ckd_g3b_or_worse (group 'kidney'): the baseline eGFR is strictly below $ckd_egfr_below (45:
---      KDIGO G3b, G4, G5). Baseline eGFR = median eGFR of the kidney_function results collected
---      in [onset - $baseline_egfr_days, onset] (default 365 days; inclusive, so a creatinine of
---      the onset draw counts; the median resists a single AKI value).
+--  ckd_g3b_or_worse (group 'kidney'): the baseline eGFR (episode_kidney: the median eGFR of
+--      the year up to and including onset) is strictly below $ckd_egfr_below (45: KDIGO G3b,
+--      G4, G5).
 --  hyperglycemia, metabolic_acidosis, hyperosmolality, rhabdomyolysis, tumour_lysis (group
 --      'lab'): a lab_conditions finding within $lab_window_hours (24) before or after onset
 --      (inclusive); the evidence is the one nearest to onset, then the earliest.
@@ -32,11 +31,7 @@
 -- words).
 --
 -- PARAMETERS: $drug_class_codes, $drug_lookback_hours, $aki_before_hours, $aki_after_hours,
--- $baseline_egfr_days, $ckd_egfr_below, $lab_window_hours, $adrenal_icd10.
-
-CREATE VIEW episode_onsets AS
-SELECT episode_id, patient_id, onset_at, CAST(onset_at AS BIGINT) AS onset_us, encounter_id
-FROM episodes;
+-- $ckd_egfr_below, $lab_window_hours, $adrenal_icd10.
 
 CREATE VIEW drug_class_windows AS
 SELECT drug_class, MIN(lookback_us) AS lookback_us, MIN(started_within_us) AS started_within_us,
@@ -85,25 +80,15 @@ FROM (
 ) AS matched
 WHERE rank = 1;
 
-CREATE VIEW episode_baseline_egfr AS
-SELECT o.episode_id, median(k.egfr) AS baseline_egfr, CAST(COUNT(k.egfr) AS BIGINT) AS n_egfr,
-       MAX(k.collected_at) AS latest_at, MAX(k.result_id) AS latest_result_id
-FROM episode_onsets o
-JOIN kidney_function k ON k.patient_id = o.patient_id
-WHERE k.egfr IS NOT NULL
-  AND CAST(k.collected_at AS BIGINT) >= o.onset_us - $baseline_egfr_days_us
-  AND CAST(k.collected_at AS BIGINT) <= o.onset_us
-GROUP BY o.episode_id;
-
 CREATE VIEW episode_ckd_causes AS
 SELECT o.episode_id, o.patient_id, o.onset_at, 'ckd_g3b_or_worse' AS cause,
-       'kidney' AS cause_group, b.latest_result_id AS evidence_id, b.latest_at AS evidence_at,
-       b.baseline_egfr AS evidence_value,
+       'kidney' AS cause_group, b.latest_egfr_result_id AS evidence_id,
+       b.latest_egfr_at AS evidence_at, b.baseline_egfr AS evidence_value,
        'baseline eGFR ' || round(b.baseline_egfr, 1) || ' mL/min/1.73 m2 (' ||
-           kdigo_gfr_category(b.baseline_egfr) || ', median of ' || b.n_egfr ||
+           b.baseline_gfr_category || ', median of ' || b.n_egfr ||
            ' result(s) in the year up to onset)' AS evidence
 FROM episode_onsets o
-JOIN episode_baseline_egfr b ON b.episode_id = o.episode_id
+JOIN episode_kidney b ON b.episode_id = o.episode_id
 WHERE b.baseline_egfr < $ckd_egfr_below;
 
 CREATE VIEW episode_lab_causes AS
@@ -145,14 +130,19 @@ UNION ALL SELECT * FROM episode_ckd_causes
 UNION ALL SELECT * FROM episode_lab_causes
 UNION ALL SELECT * FROM episode_diagnosis_causes;
 
-SELECT * FROM (
-    SELECT * FROM episode_found_causes
-    UNION ALL
-    SELECT o.episode_id, o.patient_id, o.onset_at, 'none_identified', 'none',
-           CAST(NULL AS VARCHAR),
-           arrow_cast(NULL, 'Timestamp(Microsecond, Some("UTC"))'), CAST(NULL AS DOUBLE),
-           'no drug, kidney, laboratory or diagnosis cause found in the windows'
-    FROM episode_onsets o
-    WHERE NOT EXISTS (SELECT 1 FROM episode_found_causes f WHERE f.episode_id = o.episode_id)
-) AS all_causes
-ORDER BY patient_id, onset_at, episode_id, cause_group, cause;
+-- Every episode with its causes; an episode without any gets one 'none_identified' row (a left
+-- join, so the cause views run once).
+SELECT
+    o.episode_id,
+    o.patient_id,
+    o.onset_at,
+    coalesce(f.cause, 'none_identified') AS cause,
+    coalesce(f.cause_group, 'none') AS cause_group,
+    f.evidence_id,
+    f.evidence_at,
+    f.evidence_value,
+    coalesce(f.evidence, 'no drug, kidney, laboratory or diagnosis cause found in the windows')
+        AS evidence
+FROM episode_onsets o
+LEFT JOIN episode_found_causes f ON f.episode_id = o.episode_id
+ORDER BY o.patient_id, o.onset_at, o.episode_id, cause_group, cause;

@@ -1,6 +1,7 @@
 -- episode_outcomes: what followed each high-potassium episode, one row per episode.
 --
 -- DEFINITION
+--   onset_resulted_at    when the onset result was reported (NULL when the extract lacks it).
 --   treated              a potassium-lowering administration in the treatment window
 --                        (episode_treatments); first_treatment_at, first_treatment_delay_minutes
 --                        and first_treatment_from_result_minutes for the earliest of any class.
@@ -51,6 +52,7 @@ SELECT
     e.episode_id,
     e.patient_id,
     e.onset_at,
+    o.onset_resulted_at,
     t.first_treatment_at IS NOT NULL AS treated,
     t.first_treatment_at,
     (t.first_us - CAST(e.onset_at AS BIGINT)) / 60000000.0 AS first_treatment_delay_minutes,

@@ -31,8 +31,10 @@
 --  a. The start of cytotoxic therapy, which Cairo-Bishop's window refers to, is not required:
 --     medication data rarely show it; the finding is laboratory evidence only.
 --  b. The 25%-change criteria of Cairo-Bishop are not used (Howard et al. drop them).
---  c. A draw is a patient and a collected_at instant; results of one draw with several values
---     of one analyte use the smallest result_id.
+--  c. A draw is a patient and a collected_at instant. Each qualifying result is one finding; the
+--     co-analytes of its draw (sodium and chloride for the anion gap; glucose and urea nitrogen
+--     for osmolality; albumin for corrected calcium) are the smallest value of that analyte in
+--     the draw when a draw holds several.
 --
 -- COLUMNS: patient_id, condition, at (collected_at), result_id (the result that triggers the
 -- finding), value (glucose, bicarbonate, osmolality, CK, or the number of TLS kinds), anion_gap
@@ -42,69 +44,80 @@
 -- $urea_nitrogen_loinc, $creatine_kinase_loinc, $urate_loinc, $phosphate_loinc,
 -- $calcium_loinc, $albumin_loinc, $potassium_loinc, $hemolysis_cutoff and the thresholds above.
 
--- One value per draw and co-analyte (decision c).
-CREATE VIEW draw_values AS
-SELECT patient_id, collected_at, analyte,
-       first_value(value ORDER BY result_id) AS value,
-       MIN(result_id) AS result_id
-FROM (
-    SELECT patient_id, collected_at, result_id, value,
-        CASE
-            WHEN loinc IN ($glucose_loinc) THEN 'glucose'
-            WHEN loinc IN ($bicarbonate_loinc) THEN 'bicarbonate'
-            WHEN loinc IN ($sodium_loinc) THEN 'sodium'
-            WHEN loinc IN ($chloride_loinc) THEN 'chloride'
-            WHEN loinc IN ($urea_nitrogen_loinc) THEN 'urea_nitrogen'
-            WHEN loinc IN ($creatine_kinase_loinc) THEN 'creatine_kinase'
-            WHEN loinc IN ($urate_loinc) THEN 'urate'
-            WHEN loinc IN ($phosphate_loinc) THEN 'phosphate'
-            WHEN loinc IN ($calcium_loinc) THEN 'calcium'
-            WHEN loinc IN ($albumin_loinc) THEN 'albumin'
-        END AS analyte
-    FROM lab_results
-    WHERE value IS NOT NULL
-) AS coded
-WHERE analyte IS NOT NULL
-GROUP BY patient_id, collected_at, analyte;
+-- Results of the co-analytes, by analyte (each read once; a later view that needs a value of
+-- the same draw joins on patient_id and collected_at).
+CREATE VIEW coanalyte_results AS
+SELECT patient_id, collected_at, result_id, value,
+    CASE
+        WHEN loinc IN ($glucose_loinc) THEN 'glucose'
+        WHEN loinc IN ($bicarbonate_loinc) THEN 'bicarbonate'
+        WHEN loinc IN ($sodium_loinc) THEN 'sodium'
+        WHEN loinc IN ($chloride_loinc) THEN 'chloride'
+        WHEN loinc IN ($urea_nitrogen_loinc) THEN 'urea_nitrogen'
+        WHEN loinc IN ($creatine_kinase_loinc) THEN 'creatine_kinase'
+        WHEN loinc IN ($urate_loinc) THEN 'urate'
+        WHEN loinc IN ($phosphate_loinc) THEN 'phosphate'
+        WHEN loinc IN ($calcium_loinc) THEN 'calcium'
+        WHEN loinc IN ($albumin_loinc) THEN 'albumin'
+    END AS analyte
+FROM lab_results
+WHERE value IS NOT NULL
+  AND loinc IN ($glucose_loinc, $bicarbonate_loinc, $sodium_loinc, $chloride_loinc,
+                $urea_nitrogen_loinc, $creatine_kinase_loinc, $urate_loinc, $phosphate_loinc,
+                $calcium_loinc, $albumin_loinc);
 
--- The draws with the co-analytes side by side.
-CREATE VIEW draws AS
-SELECT
-    patient_id,
-    collected_at,
-    MAX(value) FILTER (WHERE analyte = 'glucose') AS glucose,
-    MAX(result_id) FILTER (WHERE analyte = 'glucose') AS glucose_id,
-    MAX(value) FILTER (WHERE analyte = 'bicarbonate') AS bicarbonate,
-    MAX(result_id) FILTER (WHERE analyte = 'bicarbonate') AS bicarbonate_id,
-    MAX(value) FILTER (WHERE analyte = 'sodium') AS sodium,
-    MAX(result_id) FILTER (WHERE analyte = 'sodium') AS sodium_id,
-    MAX(value) FILTER (WHERE analyte = 'chloride') AS chloride,
-    MAX(value) FILTER (WHERE analyte = 'urea_nitrogen') AS urea_nitrogen,
-    MAX(value) FILTER (WHERE analyte = 'creatine_kinase') AS creatine_kinase,
-    MAX(result_id) FILTER (WHERE analyte = 'creatine_kinase') AS creatine_kinase_id,
-    MAX(value) FILTER (WHERE analyte = 'urate') AS urate,
-    MAX(result_id) FILTER (WHERE analyte = 'urate') AS urate_id,
-    MAX(value) FILTER (WHERE analyte = 'phosphate') AS phosphate,
-    MAX(result_id) FILTER (WHERE analyte = 'phosphate') AS phosphate_id,
-    MAX(value) FILTER (WHERE analyte = 'calcium') AS calcium,
-    MAX(result_id) FILTER (WHERE analyte = 'calcium') AS calcium_id,
-    MAX(value) FILTER (WHERE analyte = 'albumin') AS albumin
-FROM draw_values
-GROUP BY patient_id, collected_at;
+-- Metabolic acidosis with the anion gap of its draw.
+CREATE VIEW acidosis_findings AS
+SELECT b.patient_id, b.collected_at, b.result_id, b.value,
+       MIN(n.value) AS sodium, MIN(c.value) AS chloride
+FROM coanalyte_results b
+LEFT JOIN coanalyte_results n
+    ON n.patient_id = b.patient_id AND n.collected_at = b.collected_at AND n.analyte = 'sodium'
+LEFT JOIN coanalyte_results c
+    ON c.patient_id = b.patient_id AND c.collected_at = b.collected_at AND c.analyte = 'chloride'
+WHERE b.analyte = 'bicarbonate' AND b.value < $acidosis_bicarbonate_below
+GROUP BY b.patient_id, b.collected_at, b.result_id, b.value;
+
+-- Calculated osmolality of each sodium result's draw.
+CREATE VIEW osmolality_findings AS
+SELECT patient_id, collected_at, result_id, sodium, glucose, urea_nitrogen,
+       2 * sodium + glucose / 18.0 + urea_nitrogen / 2.8 AS osmolality
+FROM (
+    SELECT n.patient_id, n.collected_at, n.result_id, n.value AS sodium,
+           MIN(g.value) AS glucose, MIN(u.value) AS urea_nitrogen
+    FROM coanalyte_results n
+    JOIN coanalyte_results g
+        ON g.patient_id = n.patient_id AND g.collected_at = n.collected_at AND g.analyte = 'glucose'
+    JOIN coanalyte_results u
+        ON u.patient_id = n.patient_id AND u.collected_at = n.collected_at
+        AND u.analyte = 'urea_nitrogen'
+    WHERE n.analyte = 'sodium'
+    GROUP BY n.patient_id, n.collected_at, n.result_id, n.value
+) AS draws
+WHERE 2 * sodium + glucose / 18.0 + urea_nitrogen / 2.8 > $hyperosmolality_above;
 
 -- Tumour lysis: each abnormal result, by kind.
 CREATE VIEW tumour_lysis_abnormalities AS
 SELECT patient_id, collected_at, CAST(collected_at AS BIGINT) AS t_us, result_id, kind, value
 FROM (
-    SELECT patient_id, collected_at, urate_id AS result_id, 'urate' AS kind, urate AS value
-    FROM draws WHERE urate >= $tls_urate_mg_dl
+    SELECT patient_id, collected_at, result_id, 'urate' AS kind, value
+    FROM coanalyte_results WHERE analyte = 'urate' AND value >= $tls_urate_mg_dl
     UNION ALL
-    SELECT patient_id, collected_at, phosphate_id, 'phosphate', phosphate
-    FROM draws WHERE phosphate >= $tls_phosphate_mg_dl
+    SELECT patient_id, collected_at, result_id, 'phosphate', value
+    FROM coanalyte_results WHERE analyte = 'phosphate' AND value >= $tls_phosphate_mg_dl
     UNION ALL
-    SELECT patient_id, collected_at, calcium_id, 'corrected_calcium',
-           calcium + 0.8 * (4.0 - coalesce(albumin, 4.0))
-    FROM draws WHERE calcium + 0.8 * (4.0 - coalesce(albumin, 4.0)) <= $tls_calcium_mg_dl
+    SELECT patient_id, collected_at, result_id, 'corrected_calcium', corrected
+    FROM (
+        SELECT c.patient_id, c.collected_at, c.result_id,
+               c.value + 0.8 * (4.0 - coalesce(MIN(a.value), 4.0)) AS corrected
+        FROM coanalyte_results c
+        LEFT JOIN coanalyte_results a
+            ON a.patient_id = c.patient_id AND a.collected_at = c.collected_at
+            AND a.analyte = 'albumin'
+        WHERE c.analyte = 'calcium'
+        GROUP BY c.patient_id, c.collected_at, c.result_id, c.value
+    ) AS calcium
+    WHERE corrected <= $tls_calcium_mg_dl
     UNION ALL
     SELECT patient_id, collected_at, result_id, 'potassium', value
     FROM potassium_results
@@ -131,29 +144,29 @@ HAVING COUNT(*) >= 2;
 
 SELECT patient_id, condition, at, result_id, value, anion_gap, detail
 FROM (
-    SELECT patient_id, 'hyperglycemia' AS condition, collected_at AS at, glucose_id AS result_id,
-           glucose AS value, CAST(NULL AS DOUBLE) AS anion_gap,
-           'glucose ' || CAST(round(glucose) AS BIGINT) || ' mg/dL' AS detail
-    FROM draws WHERE glucose > $hyperglycemia_above_mg_dl
+    SELECT patient_id, 'hyperglycemia' AS condition, collected_at AS at, result_id,
+           value, CAST(NULL AS DOUBLE) AS anion_gap,
+           'glucose ' || CAST(round(value) AS BIGINT) || ' mg/dL' AS detail
+    FROM coanalyte_results WHERE analyte = 'glucose' AND value > $hyperglycemia_above_mg_dl
     UNION ALL
-    SELECT patient_id, 'metabolic_acidosis', collected_at, bicarbonate_id, bicarbonate,
-           sodium - (chloride + bicarbonate),
-           'bicarbonate ' || bicarbonate || ' mmol/L' || coalesce(
-               ', anion gap ' || (sodium - (chloride + bicarbonate)) || ' mmol/L', '')
-    FROM draws WHERE bicarbonate < $acidosis_bicarbonate_below
+    SELECT patient_id, 'metabolic_acidosis', collected_at, result_id, value,
+           sodium - (chloride + value),
+           'bicarbonate ' || value || ' mmol/L' || coalesce(
+               ', anion gap ' || (sodium - (chloride + value)) || ' mmol/L', '')
+    FROM acidosis_findings
     UNION ALL
-    SELECT patient_id, 'hyperosmolality', collected_at, sodium_id,
-           2 * sodium + glucose / 18.0 + urea_nitrogen / 2.8, CAST(NULL AS DOUBLE),
-           'calculated osmolality ' ||
-               CAST(round(2 * sodium + glucose / 18.0 + urea_nitrogen / 2.8) AS BIGINT) ||
+    SELECT patient_id, 'hyperosmolality', collected_at, result_id, osmolality,
+           CAST(NULL AS DOUBLE),
+           'calculated osmolality ' || CAST(round(osmolality) AS BIGINT) ||
                ' mOsm/kg (sodium ' || sodium || ' mmol/L, glucose ' || glucose ||
                ' mg/dL, urea nitrogen ' || urea_nitrogen || ' mg/dL)'
-    FROM draws WHERE 2 * sodium + glucose / 18.0 + urea_nitrogen / 2.8 > $hyperosmolality_above
+    FROM osmolality_findings
     UNION ALL
-    SELECT patient_id, 'rhabdomyolysis', collected_at, creatine_kinase_id, creatine_kinase,
-           CAST(NULL AS DOUBLE),
-           'creatine kinase ' || CAST(round(creatine_kinase) AS BIGINT) || ' U/L'
-    FROM draws WHERE creatine_kinase >= $rhabdomyolysis_ck_multiple * $ck_upper_normal_limit
+    SELECT patient_id, 'rhabdomyolysis', collected_at, result_id, value, CAST(NULL AS DOUBLE),
+           'creatine kinase ' || CAST(round(value) AS BIGINT) || ' U/L'
+    FROM coanalyte_results
+    WHERE analyte = 'creatine_kinase'
+      AND value >= $rhabdomyolysis_ck_multiple * $ck_upper_normal_limit
     UNION ALL
     SELECT patient_id, 'tumour_lysis', collected_at, result_id, n_kinds, CAST(NULL AS DOUBLE),
            'abnormal within the window: ' || kinds

@@ -73,8 +73,8 @@ fn only_the_cli_prints() {
     }
 }
 
-/// Invariant: the pure bottom crates do no I/O and know no Arrow or DataFusion; ingest never
-/// depends on the SQL engine.
+/// Invariant: the pure crates (statistics, model, report) do no I/O and know no Arrow or
+/// DataFusion; ingest never depends on the SQL engine.
 #[test]
 fn dependency_direction() {
     let stats = manifest_deps("kcohort-stats");
@@ -98,7 +98,20 @@ fn dependency_direction() {
             "kcohort-ingest must not depend on {forbidden}"
         );
     }
-    for pure in ["kcohort-stats", "kcohort-model"] {
+    let report = manifest_deps("kcohort-report");
+    for forbidden in [
+        "arrow",
+        "parquet",
+        "datafusion",
+        "kcohort-engine",
+        "kcohort-ingest",
+    ] {
+        assert!(
+            !report.contains(forbidden),
+            "kcohort-report must not depend on {forbidden}"
+        );
+    }
+    for pure in ["kcohort-stats", "kcohort-model", "kcohort-report"] {
         let mut files = Vec::new();
         rust_files(&root().join("crates").join(pure).join("src"), &mut files);
         for f in files {

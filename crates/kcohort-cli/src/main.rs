@@ -4,6 +4,8 @@
 mod command;
 mod failure;
 mod progress_bar;
+mod report_files;
+mod store_query;
 mod summary;
 mod table_output;
 

@@ -53,6 +53,11 @@ pub const DEFINITIONS: &[Definition] = &[
         sql: include_str!("../../../queries/lab_conditions.sql"),
     },
     Definition {
+        table: "episode_kidney",
+        file: "episode_kidney.sql",
+        sql: include_str!("../../../queries/episode_kidney.sql"),
+    },
+    Definition {
         table: "episode_causes",
         file: "episode_causes.sql",
         sql: include_str!("../../../queries/episode_causes.sql"),
@@ -71,6 +76,16 @@ pub const DEFINITIONS: &[Definition] = &[
         table: "episode_outcomes",
         file: "episode_outcomes.sql",
         sql: include_str!("../../../queries/episode_outcomes.sql"),
+    },
+    Definition {
+        table: "unit_months",
+        file: "unit_months.sql",
+        sql: include_str!("../../../queries/unit_months.sql"),
+    },
+    Definition {
+        table: "episode_register",
+        file: "episode_register.sql",
+        sql: include_str!("../../../queries/episode_register.sql"),
     },
 ];
 

@@ -17,11 +17,12 @@
 use crate::EngineError;
 use crate::definition::{DEFINITIONS, plan_definition};
 use crate::derived_output::{WrittenTable, write_table};
-use crate::parameter::Parameters;
+use crate::parameter::{ParamValue, Parameters};
 use crate::session::{EngineOptions, register_contract_tables, register_parquet_files, session};
 use datafusion::error::DataFusionError;
 use kcohort_model::Manifest;
 use kcohort_model::manifest::{StoredFile, StoredTable};
+use kcohort_model::site_zone::SiteZone;
 use kcohort_model::store_layout::{DERIVED_DIR, MANIFEST_FILE, TEMP_PREFIX};
 use kcohort_model::study::Study;
 use kcohort_store::hex;
@@ -222,7 +223,15 @@ pub async fn derive_async(
 
     let ctx = session(options)?;
     register_contract_tables(&ctx, root, &manifest)?;
-    let parameters = Parameters::from_study(study, extract_end);
+    let mut parameters = Parameters::from_study(study, extract_end);
+    let zone = SiteZone::parse(&manifest.site_timezone).map_err(|m| EngineError::store(root, m))?;
+    let earliest = earliest_instant(&ctx, options)
+        .await?
+        .unwrap_or(extract_end);
+    parameters.insert(
+        "local_months",
+        local_months_table(&zone, earliest, extract_end),
+    );
     let generation = manifest.generation + 1;
     let mut written: Vec<WrittenTable> = Vec::new();
     let mut reports = Vec::new();
@@ -277,6 +286,50 @@ pub async fn derive_async(
         generation,
         tables: reports,
     })
+}
+
+/// The earliest admission or lab result of the store (UTC microseconds), if any.
+async fn earliest_instant(
+    ctx: &datafusion::prelude::SessionContext,
+    options: &EngineOptions,
+) -> Result<Option<i64>, EngineError> {
+    let sql = "SELECT CAST(MIN(t) AS BIGINT) FROM (\
+               SELECT MIN(admitted_at) AS t FROM encounters \
+               UNION ALL SELECT MIN(collected_at) AS t FROM lab_results) AS firsts";
+    let on_error = |e| query_failure("the calendar of local months", options, e);
+    let batches = ctx
+        .sql(sql)
+        .await
+        .map_err(on_error)?
+        .collect()
+        .await
+        .map_err(on_error)?;
+    Ok(batches.iter().find(|b| b.num_rows() > 0).and_then(|b| {
+        use datafusion::arrow::array::{Array, AsArray};
+        let column = b
+            .column(0)
+            .as_primitive::<datafusion::arrow::datatypes::Int64Type>();
+        (!column.is_null(0)).then(|| column.value(0))
+    }))
+}
+
+/// `$local_months`: one row per local calendar month (month, start_us, end_us) from the month
+/// of `from_us` to that of `to_us`.
+pub fn local_months_table(zone: &SiteZone, from_us: i64, to_us: i64) -> ParamValue {
+    ParamValue::Table {
+        columns: vec!["month", "start_us", "end_us"],
+        rows: zone
+            .local_months(from_us, to_us)
+            .into_iter()
+            .map(|(month, start, end)| {
+                vec![
+                    ParamValue::Codes(vec![month]),
+                    ParamValue::Int(start),
+                    ParamValue::Int(end),
+                ]
+            })
+            .collect(),
+    }
 }
 
 fn sync_dir(dir: &Path) -> Result<(), EngineError> {

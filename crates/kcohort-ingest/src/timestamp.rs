@@ -8,8 +8,7 @@
 //! hour repeated when clocks go back) takes the earlier instant and is counted.
 
 use crate::context::FoldHasher;
-use chrono::{FixedOffset, LocalResult, NaiveDate, NaiveDateTime, NaiveTime, Offset, TimeZone};
-use chrono_tz::Tz;
+use chrono::{LocalResult, NaiveDate, NaiveDateTime, NaiveTime};
 use std::collections::HashMap;
 use std::hash::BuildHasherDefault;
 
@@ -106,52 +105,7 @@ fn digits(b: &[u8], start: usize, n: usize) -> Option<u32> {
     Some(v)
 }
 
-/// The site time zone: an IANA name or a fixed offset.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub enum SiteZone {
-    Named(Tz),
-    Fixed(FixedOffset),
-}
-
-impl SiteZone {
-    /// `UTC`, an IANA name such as `Europe/Berlin`, or a fixed offset such as `+01:00` / `-05:00`.
-    pub fn parse(text: &str) -> Result<SiteZone, String> {
-        let t = text.trim();
-        if let [sign @ (b'+' | b'-'), h1, h2, b':', m1, m2] = t.as_bytes() {
-            let h = digits(&[*h1, *h2], 0, 2);
-            let m = digits(&[*m1, *m2], 0, 2);
-            if let (Some(h), Some(m)) = (h, m)
-                && h <= 23
-                && m <= 59
-            {
-                let secs = (h * 3600 + m * 60) as i32;
-                let secs = if *sign == b'+' { secs } else { -secs };
-                return Ok(SiteZone::Fixed(
-                    FixedOffset::east_opt(secs).expect("offset within a day"),
-                ));
-            }
-        }
-        t.parse::<Tz>().map(SiteZone::Named).map_err(|_| {
-            format!("`{text}` is not a time zone: give an IANA name such as Europe/Berlin or America/Chicago, or a fixed offset such as +01:00")
-        })
-    }
-
-    pub fn name(&self) -> String {
-        match self {
-            SiteZone::Named(tz) => tz.name().to_string(),
-            SiteZone::Fixed(off) => off.to_string(),
-        }
-    }
-
-    fn resolve_uncached(&self, local: &NaiveDateTime) -> LocalResult<i32> {
-        match self {
-            SiteZone::Named(tz) => tz
-                .offset_from_local_datetime(local)
-                .map(|o| o.fix().local_minus_utc()),
-            SiteZone::Fixed(off) => LocalResult::Single(off.local_minus_utc()),
-        }
-    }
-}
+pub use kcohort_model::site_zone::SiteZone;
 
 /// How a zoneless time resolved.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -194,14 +148,14 @@ impl SiteClock {
         if let Some(offset) = self.hour_offsets.get(&hour) {
             return Resolved::Exact(local_us - i64::from(*offset) * 1_000_000);
         }
-        let result = self.zone.resolve_uncached(&local);
+        let result = self.zone.resolve_local(&local);
         if let LocalResult::Single(offset) = result {
             let hour_start = chrono::DateTime::from_timestamp_micros(hour * 3_600_000_000)
                 .expect("in range")
                 .naive_utc();
             let hour_end = hour_start + chrono::Duration::microseconds(3_600_000_000 - 1);
-            if self.zone.resolve_uncached(&hour_start) == LocalResult::Single(offset)
-                && self.zone.resolve_uncached(&hour_end) == LocalResult::Single(offset)
+            if self.zone.resolve_local(&hour_start) == LocalResult::Single(offset)
+                && self.zone.resolve_local(&hour_end) == LocalResult::Single(offset)
             {
                 self.hour_offsets.insert(hour, offset);
             }

@@ -12,6 +12,7 @@ pub mod contract;
 pub mod kidney;
 pub mod manifest;
 pub mod reject;
+pub mod site_zone;
 pub mod store_layout;
 pub mod store_schema;
 pub mod study;

@@ -57,7 +57,10 @@ mod tests {
             let female = !male;
             let e = egfr_ckd_epi_2021(scr, age, female);
             assert!((e - expected).abs() < 0.05, "{male} {age} {scr}: {e}");
-            assert_eq!(kcohort_model::kidney::kdigo_gfr_category(e).unwrap(), category);
+            assert_eq!(
+                kcohort_model::kidney::kdigo_gfr_category(e).unwrap(),
+                category
+            );
         }
     }
 

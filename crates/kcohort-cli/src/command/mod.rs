@@ -4,6 +4,8 @@ mod bench;
 mod derive;
 mod ingest;
 mod init_study;
+pub mod report;
+mod run;
 pub mod sql;
 mod stats;
 mod synth;
@@ -36,6 +38,10 @@ pub enum Command {
     Synth(synth::SynthArgs),
     /// Print speed and memory figures (rows/s, peak RSS) for the benchmarks.
     Bench(bench::BenchArgs),
+    /// Write the monthly quality report of a derived store (HTML, JSON, CSV and Parquet tables).
+    Report(report::ReportArgs),
+    /// Ingest, derive and report in one go: the monthly job on a new extract.
+    Run(run::RunArgs),
     /// Run one read-only SQL query over a store's tables and derived tables.
     Sql(sql::SqlArgs),
     /// Statistics on any table of your own (CSV or Parquet): proportions, rates, ratios, survival, Cox, charts.
@@ -48,6 +54,8 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::InitStudy(args) => init_study::run(args),
         Command::Derive(args) => derive::run(args),
         Command::Sql(args) => sql::run(args),
+        Command::Report(args) => report::run(args),
+        Command::Run(args) => run::run(args),
         Command::Stats(args) => stats::run(args),
         Command::Synth(args) => synth::run(args),
         Command::Bench(args) => bench::run(args),
