@@ -86,120 +86,41 @@ SELECT
 FROM lab_results
 WHERE loinc IN ($potassium_loinc);
 
--- Steps 3-4: the used results in order, numbered (seq), each high, normal or in between.
--- The windows run over all patients in one order (patient_id first) instead of PARTITION BY
--- patient_id: DataFusion 55 pays a large cost per window partition, and most patients have few
--- results. A row's predecessor therefore counts only when it is the same patient's.
-CREATE VIEW potassium_sequence AS
-SELECT
-    patient_id,
-    result_id,
-    collected_at,
-    value,
-    value > $high_above AS is_high,
-    value <= $normal_at_or_below AS is_normal,
-    ROW_NUMBER() OVER w AS seq,
-    coalesce(LAG(patient_id) OVER w = patient_id, false) AS has_previous,
-    LAG(value <= $normal_at_or_below) OVER w AS previous_is_normal,
-    LAG(collected_at) OVER w AS previous_collected_at,
-    RANK() OVER (ORDER BY patient_id, collected_at) AS first_seq_at_time
-FROM potassium_results
-WHERE has_value AND NOT hemolysed
-WINDOW w AS (ORDER BY patient_id, collected_at, result_id);
-
--- Step 5: cut each patient's sequence into segments. A segment ends at each normal value and
--- before each gap of more than $max_gap_hours (and at each patient's last result). An episode
--- never spans a segment boundary: a normal value closes it, and so does a gap. Inside a
--- segment the episode (if any) opens at the first high value and runs to the segment's last
--- result; it is resolved exactly when that last result is normal (only a segment's last result
--- can be normal). Segment numbers are unique over all patients.
-CREATE VIEW potassium_segments AS
-SELECT
-    *,
-    SUM(CASE WHEN starts_segment THEN 1 ELSE 0 END) OVER forward AS segment,
-    MAX(CASE WHEN starts_segment THEN seq END) OVER forward AS segment_start_seq,
-    MAX(CASE WHEN is_high THEN seq END) OVER forward AS latest_high_seq
-FROM (
-    SELECT
-        *,
-        coalesce(
-            NOT has_previous
-            OR previous_is_normal
-            OR collected_at > previous_collected_at + $max_gap_hours,
-            true) AS starts_segment
-    FROM potassium_sequence
-) AS sequence_with_starts
-WINDOW forward AS (ORDER BY patient_id, collected_at, result_id
-                   ROWS BETWEEN UNBOUNDED PRECEDING AND CURRENT ROW);
-
--- For n_results (decision b): first_seq_at_time (above) and last_seq_at_time number the first
--- and last result of the patient collected at the same instant. Counted from the other end, a
--- row's number minus the rank of its instant is the number of results at that instant after it.
--- (A separate step, so that DataFusion sorts once forward for the steps above and once backward
--- here.)
-CREATE VIEW potassium_instants AS
-SELECT
-    *,
-    seq + (ROW_NUMBER() OVER (ORDER BY patient_id DESC, collected_at DESC, result_id DESC)
-           - RANK() OVER (ORDER BY patient_id DESC, collected_at DESC)) AS last_seq_at_time
-FROM potassium_segments;
-
--- Step 5: one run per segment that has a high value (an episode before rebound merging), made
--- of the segment's rows from its first high value on (a row is in the run when a high value of
--- its segment came at or before it).
-CREATE VIEW potassium_runs AS
-SELECT
-    patient_id,
-    segment,
-    MIN(collected_at) FILTER (WHERE is_high) AS onset_at,
-    first_value(value ORDER BY seq) FILTER (WHERE is_high) AS onset_value,
-    first_value(result_id ORDER BY seq) FILTER (WHERE is_high) AS onset_result_id,
-    first_value(first_seq_at_time ORDER BY seq) FILTER (WHERE is_high) AS first_seq,
-    MAX(last_seq_at_time) AS last_seq,
-    MAX(value) AS peak_value,
-    MAX(collected_at) AS end_at,
-    bool_or(is_normal) AS resolved,
-    SUM(CASE WHEN is_high THEN 1 ELSE 0 END) AS n_high
-FROM potassium_instants
-WHERE latest_high_seq >= segment_start_seq
-GROUP BY patient_id, segment;
-
--- Step 6: a run that starts strictly less than $rebound_hours after the end of the preceding
--- run, when that run was resolved, continues its episode; every other run starts a new one.
-CREATE VIEW potassium_runs_numbered AS
-SELECT
-    *,
-    SUM(starts_episode) OVER (PARTITION BY patient_id ORDER BY segment
-                              ROWS BETWEEN UNBOUNDED PRECEDING AND CURRENT ROW) AS episode_number
-FROM (
-    SELECT
-        *,
-        CASE
-            WHEN LAG(resolved) OVER runs
-                 AND onset_at < LAG(end_at) OVER runs + $rebound_hours THEN 0
-            ELSE 1
-        END AS starts_episode
-    FROM potassium_runs
-    WINDOW runs AS (PARTITION BY patient_id ORDER BY segment)
-) AS linked_runs;
-
--- Step 6: merge the runs of each episode. Every run but the last was resolved (else it could
--- not have been re-opened), so the episode is resolved exactly when all its runs are.
+-- Steps 3-6: the used results of each patient in order (collected_at, then result_id as bytes),
+-- read by a state machine that applies rules 4-6 exactly as written above: open at a high
+-- value, extend, close at the first normal value or before a gap of more than $max_gap_hours,
+-- re-open the preceding resolved episode at a high value less than $rebound_hours after its end.
+-- The machine is the window function potassium_episode_machine (Rust,
+-- crates/kcohort-engine/src/episode_window.rs): a loop over the sorted rows instead of the
+-- several sorts and aggregations the same rules need as window SQL. It returns, on the row of each
+-- episode's opening high value, the episode after rebound merging (onset_at, onset_value,
+-- peak_value, end_at, n_results by decision b, n_high, resolved, n_rebounds), NULL elsewhere.
+-- The window has no PARTITION BY on purpose: one ordered pass over all patients (DataFusion pays a
+-- large cost per window partition, and most patients have few results).
 CREATE VIEW potassium_episodes_merged AS
 SELECT
     patient_id,
-    episode_number,
-    MIN(onset_at) AS onset_at,
-    first_value(onset_value ORDER BY segment) AS onset_value,
-    first_value(onset_result_id ORDER BY segment) AS onset_result_id,
-    MAX(peak_value) AS peak_value,
-    MAX(end_at) AS end_at,
-    bool_and(resolved) AS resolved,
-    CAST(MAX(last_seq) - MIN(first_seq) + 1 AS BIGINT) AS n_results,
-    CAST(SUM(n_high) AS BIGINT) AS n_high,
-    CAST(COUNT(*) - 1 AS BIGINT) AS n_rebounds
-FROM potassium_runs_numbered
-GROUP BY patient_id, episode_number;
+    onset_result_id,
+    machine['onset_at'] AS onset_at,
+    machine['onset_value'] AS onset_value,
+    machine['peak_value'] AS peak_value,
+    machine['end_at'] AS end_at,
+    machine['resolved'] AS resolved,
+    machine['n_results'] AS n_results,
+    machine['n_high'] AS n_high,
+    machine['n_rebounds'] AS n_rebounds
+FROM (
+    SELECT
+        patient_id,
+        result_id AS onset_result_id,
+        potassium_episode_machine(
+            patient_id, collected_at, value,
+            $high_above, $normal_at_or_below, $max_gap_hours_us, $rebound_hours_us
+        ) OVER (ORDER BY patient_id, collected_at, result_id) AS machine
+    FROM potassium_results
+    WHERE has_value AND NOT hemolysed
+) AS read_in_order
+WHERE machine IS NOT NULL;
 
 -- Step 7: potassium-lowering treatments as the pseudohyperkalemia rule counts them.
 CREATE VIEW potassium_lowering_administrations AS
@@ -207,47 +128,47 @@ SELECT patient_id, start_at
 FROM medication_events
 WHERE kind = 'administer' AND atc_matches_any(atc, $potassium_lowering_atc);
 
--- Step 7: the first potassium-lowering treatment in [onset_at, end_at], if any.
+-- Step 7: the first potassium-lowering treatment in [onset_at, end_at], if any. (Per-episode
+-- picks here and below are aggregates over the episode's columns, not ROW_NUMBER windows: one
+-- window partition per episode is slow in DataFusion 55.)
 CREATE VIEW potassium_episodes_treated AS
-SELECT *
-FROM (
-    SELECT
-        e.*,
-        t.start_at AS first_treatment_at,
-        ROW_NUMBER() OVER (PARTITION BY e.patient_id, e.episode_number
-                           ORDER BY t.start_at) AS treatment_rank
-    FROM potassium_episodes_merged e
-    LEFT JOIN potassium_lowering_administrations t
-        ON t.patient_id = e.patient_id
-        AND t.start_at >= e.onset_at
-        AND t.start_at <= e.end_at
-) AS with_treatment
-WHERE treatment_rank = 1;
+SELECT
+    e.patient_id, e.onset_result_id, e.onset_at, e.onset_value, e.peak_value, e.end_at,
+    e.resolved, e.n_results, e.n_high, e.n_rebounds,
+    MIN(t.start_at) AS first_treatment_at
+FROM potassium_episodes_merged e
+LEFT JOIN potassium_lowering_administrations t
+    ON t.patient_id = e.patient_id
+    AND t.start_at >= e.onset_at
+    AND t.start_at <= e.end_at
+GROUP BY e.patient_id, e.onset_result_id, e.onset_at, e.onset_value, e.peak_value, e.end_at,
+    e.resolved, e.n_results, e.n_high, e.n_rebounds;
 
 -- Step 9: the covering encounter of the onset, by class preference, admission, encounter_id.
 CREATE VIEW potassium_episodes_located AS
-SELECT *
-FROM (
+SELECT
+    e.patient_id, e.onset_result_id, e.onset_at, e.onset_value, e.peak_value, e.end_at,
+    e.resolved, e.n_results, e.n_high, e.n_rebounds,
+    e.first_treatment_at,
+    first_value(c.encounter_id ORDER BY c.class_rank, c.admitted_at, c.encounter_id)
+        AS encounter_id,
+    first_value(c.class ORDER BY c.class_rank, c.admitted_at, c.encounter_id)
+        AS encounter_class,
+    first_value(c.unit ORDER BY c.class_rank, c.admitted_at, c.encounter_id) AS unit,
+    first_value(c.admitted_at ORDER BY c.class_rank, c.admitted_at, c.encounter_id)
+        AS admitted_at
+FROM potassium_episodes_treated e
+LEFT JOIN (
     SELECT
-        e.*,
-        c.encounter_id,
-        c.class AS encounter_class,
-        c.unit,
-        c.admitted_at,
-        ROW_NUMBER() OVER (
-            PARTITION BY e.patient_id, e.episode_number
-            ORDER BY
-                CASE c.class WHEN 'inpatient' THEN 1 WHEN 'emergency' THEN 2 ELSE 3 END,
-                c.admitted_at,
-                c.encounter_id
-        ) AS encounter_rank
-    FROM potassium_episodes_treated e
-    LEFT JOIN encounters c
-        ON c.patient_id = e.patient_id
-        AND c.admitted_at <= e.onset_at
-        AND e.onset_at < least(coalesce(c.discharged_at, $extract_end), $extract_end)
-) AS with_encounter
-WHERE encounter_rank = 1;
+        *,
+        CASE class WHEN 'inpatient' THEN 1 WHEN 'emergency' THEN 2 ELSE 3 END AS class_rank
+    FROM encounters
+) c
+    ON c.patient_id = e.patient_id
+    AND c.admitted_at <= e.onset_at
+    AND e.onset_at < least(coalesce(c.discharged_at, $extract_end), $extract_end)
+GROUP BY e.patient_id, e.onset_result_id, e.onset_at, e.onset_value, e.peak_value, e.end_at,
+    e.resolved, e.n_results, e.n_high, e.n_rebounds, e.first_treatment_at;
 
 -- Steps 7, 8 and 10: the attributes.
 SELECT

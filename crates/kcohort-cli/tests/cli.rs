@@ -145,3 +145,109 @@ fn a_process_killed_during_the_commit_leaves_the_previous_store_intact() {
         assert!(verify.is_empty(), "{step}: {verify:?}");
     }
 }
+
+/// Every file under `dir` with its bytes.
+fn snapshot(dir: &Path) -> std::collections::BTreeMap<PathBuf, Vec<u8>> {
+    let mut out = std::collections::BTreeMap::new();
+    let mut stack = vec![dir.to_path_buf()];
+    while let Some(d) = stack.pop() {
+        for entry in std::fs::read_dir(&d).unwrap() {
+            let p = entry.unwrap().path();
+            if p.is_dir() {
+                stack.push(p);
+            } else {
+                out.insert(p.clone(), std::fs::read(&p).unwrap());
+            }
+        }
+    }
+    out
+}
+
+/// The read-only gate of `kcohort sql`: plain queries run over input and derived tables; DDL,
+/// DML, COPY, SET and the rest are refused (also inside CTEs, behind EXPLAIN and after a first
+/// statement), a file path is never a table, and the store's files are byte-identical after.
+#[test]
+fn sql_is_read_only() {
+    let dir = tempfile::tempdir().unwrap();
+    let store = dir.path().join("store");
+    assert!(ingest(&base_fixture(), &store, &[]).status.success());
+    let derive = kcohort()
+        .args(["derive", "--store"])
+        .arg(&store)
+        .output()
+        .unwrap();
+    assert!(
+        derive.status.success(),
+        "{}",
+        String::from_utf8_lossy(&derive.stderr)
+    );
+    let before = snapshot(&store);
+
+    let sql = |query: &str| {
+        kcohort()
+            .args(["sql", "--store"])
+            .arg(&store)
+            .arg(query)
+            .output()
+            .unwrap()
+    };
+    let ok = sql("SELECT COUNT(*) AS n FROM episodes JOIN patients USING (patient_id)");
+    assert!(
+        ok.status.success(),
+        "{}",
+        String::from_utf8_lossy(&ok.stderr)
+    );
+    let csv = kcohort()
+        .args(["sql", "--store"])
+        .arg(&store)
+        .args([
+            "--format",
+            "csv",
+            "SELECT sex, COUNT(*) AS n FROM patients GROUP BY sex ORDER BY sex",
+        ])
+        .output()
+        .unwrap();
+    assert!(String::from_utf8_lossy(&csv.stdout).starts_with("sex,n\n"));
+
+    let outside = dir.path().join("written-by-sql.csv");
+    let outside = outside.display();
+    let forbidden = [
+        "CREATE TABLE t AS SELECT 1".to_string(),
+        "CREATE VIEW v AS SELECT * FROM patients".into(),
+        "CREATE EXTERNAL TABLE t STORED AS CSV LOCATION '/etc/passwd'".into(),
+        "CREATE SCHEMA s".into(),
+        "CREATE FUNCTION f(x INT) RETURNS INT RETURN x".into(),
+        "DROP TABLE episodes".into(),
+        "DROP VIEW IF EXISTS v".into(),
+        "INSERT INTO patients SELECT * FROM patients".into(),
+        "DELETE FROM patients".into(),
+        "UPDATE patients SET sex = 'F'".into(),
+        "TRUNCATE TABLE patients".into(),
+        "ALTER TABLE patients ADD COLUMN x INT".into(),
+        format!("COPY (SELECT * FROM patients) TO '{outside}'"),
+        format!("COPY patients TO '{outside}' STORED AS CSV"),
+        format!("EXPLAIN COPY patients TO '{outside}'"),
+        "SET datafusion.execution.target_partitions = 1".into(),
+        "SHOW ALL".into(),
+        "PREPARE q AS SELECT 1".into(),
+        "EXECUTE q".into(),
+        "WITH x AS (SELECT 1) INSERT INTO patients SELECT * FROM patients".into(),
+        "SELECT 1; DROP TABLE episodes".into(),
+        "SELECT * FROM '/etc/passwd'".into(),
+        "SELECT * FROM 'manifest.json'".into(),
+        format!("SELECT * FROM '{}'", store.join("tables").display()),
+    ];
+    for query in &forbidden {
+        let out = sql(query);
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(
+            out.status.code(),
+            Some(1),
+            "`{query}` was not refused: {err}"
+        );
+        assert!(err.contains("error:"), "`{query}`: {err}");
+    }
+    assert!(forbidden.len() >= 20);
+    assert!(!dir.path().join("written-by-sql.csv").exists());
+    assert_eq!(before, snapshot(&store), "the store changed");
+}

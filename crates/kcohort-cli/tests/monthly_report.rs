@@ -4,7 +4,7 @@
 //! report month; the network headline must equal the planted monthly count; and the page must be
 //! self-contained.
 
-use std::path::Path;
+use std::path::{Path, PathBuf};
 use std::process::Command;
 
 fn kcohort() -> Command {
@@ -23,24 +23,24 @@ fn ok(mut c: Command) -> String {
     String::from_utf8_lossy(&out.stdout).into_owned()
 }
 
-#[test]
-fn a_planted_rate_step_is_flagged_by_the_chart_and_the_funnel() {
-    let dir = tempfile::tempdir().unwrap();
-    let extract = dir.path().join("extract");
+/// Write a 40,000-patient extract with the given step factor, run it, and return the truth, the
+/// report and the report folder.
+fn run_with_step(dir: &Path, factor: f64) -> (serde_json::Value, serde_json::Value, PathBuf) {
+    let extract = dir.join("extract");
+    let settings = dir.join("settings.json");
+    std::fs::write(&settings, format!("{{\"step_factor\": {factor}}}")).unwrap();
     let mut synth = kcohort();
     synth
         .args(["synth", "--patients", "40000", "--seed", "7", "--out"])
-        .arg(&extract);
+        .arg(&extract)
+        .arg("--settings")
+        .arg(&settings);
     ok(synth);
     let truth: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(extract.join("truth.json")).unwrap())
             .unwrap();
-    let step_unit = truth["rate_step"]["unit"].as_str().unwrap().to_string();
-    let step_month = truth["rate_step"]["month"].as_str().unwrap().to_string();
-    let month = truth["last_complete_month"].as_str().unwrap().to_string();
-
-    let store = dir.path().join("store");
-    let out = dir.path().join("report");
+    let store = dir.join("store");
+    let out = dir.join("report");
     let mut run = kcohort();
     run.args(["run", "--extract"])
         .arg(&extract)
@@ -55,9 +55,27 @@ fn a_planted_rate_step_is_flagged_by_the_chart_and_the_funnel() {
     .arg(&out);
     let printed = ok(run);
     assert!(printed.contains("index.html"), "{printed}");
-
     let report: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(out.join("report.json")).unwrap()).unwrap();
+    (truth, report, out)
+}
+
+fn unit_row<'a>(report: &'a serde_json::Value, unit: &str) -> &'a serde_json::Value {
+    report["units"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|u| u["unit"] == unit)
+        .unwrap()
+}
+
+#[test]
+fn a_planted_rate_step_is_flagged_by_the_chart_and_the_funnel() {
+    let dir = tempfile::tempdir().unwrap();
+    let (truth, report, out) = run_with_step(dir.path(), 3.0);
+    let step_unit = truth["rate_step"]["unit"].as_str().unwrap().to_string();
+    let step_month = truth["rate_step"]["month"].as_str().unwrap().to_string();
+    let month = truth["last_complete_month"].as_str().unwrap().to_string();
     assert_eq!(report["month"].as_str().unwrap(), month, "default month");
 
     // The network count of the month is the planted hospital-acquired count, up to the edge
@@ -95,12 +113,7 @@ fn a_planted_rate_step_is_flagged_by_the_chart_and_the_funnel() {
     assert!(after.len() >= 3, "{unit}");
 
     // The funnel of the report month puts it above the 99.8% limit.
-    let row = report["units"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .find(|u| u["unit"] == step_unit.as_str())
-        .unwrap();
+    let row = unit_row(&report, &step_unit);
     assert_eq!(row["funnel"], "above_99.8", "{row}");
 
     let html = std::fs::read_to_string(out.join("index.html")).unwrap();
@@ -115,6 +128,16 @@ fn a_planted_rate_step_is_flagged_by_the_chart_and_the_funnel() {
     ] {
         assert!(Path::new(&out.join(t)).exists(), "{t}");
     }
+}
+
+/// The same extract without the step (factor 1): the unit stays inside the funnel's 99.8%
+/// limits, so the check above is not one that passes whatever the data.
+#[test]
+fn without_the_step_the_unit_is_not_an_outlier() {
+    let dir = tempfile::tempdir().unwrap();
+    let (truth, report, _) = run_with_step(dir.path(), 1.0);
+    let row = unit_row(&report, truth["rate_step"]["unit"].as_str().unwrap());
+    assert!(!row["funnel"].as_str().unwrap().ends_with("99.8"), "{row}");
 }
 
 /// The page renders in headless Chromium (Debian package `chromium`): the screenshot is a

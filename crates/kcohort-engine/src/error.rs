@@ -27,6 +27,11 @@ pub enum EngineError {
     #[error("definition {definition}: {message}")]
     Definition { definition: String, message: String },
 
+    /// A researcher's query (`kcohort sql`) was refused by the read-only gate, or failed to plan
+    /// or run: the user's to fix.
+    #[error("{message}")]
+    UserQuery { message: String },
+
     /// DataFusion failed to plan or run a definition.
     #[error("definition {definition} failed: {source}")]
     Query {

@@ -14,9 +14,11 @@
 //! - `udf`, `kidney_udf`: the SQL functions (CTCAE grade, ATC prefix match, CKD-EPI 2021 eGFR,
 //!   KDIGO GFR category and AKI stage).
 
+pub mod catalog;
 pub mod definition;
 pub mod derive;
 mod derived_output;
+mod episode_window;
 mod error;
 mod kidney_udf;
 pub mod parameter;

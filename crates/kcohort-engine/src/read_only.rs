@@ -57,8 +57,7 @@ const REFUSAL: &str = "only a query (SELECT, WITH ... SELECT, VALUES, EXPLAIN) m
     the store is read-only (no CREATE, INSERT, UPDATE, DELETE, DROP, COPY, SET, PREPARE)";
 
 fn refused(message: impl Into<String>) -> EngineError {
-    EngineError::Definition {
-        definition: "query".into(),
+    EngineError::UserQuery {
         message: message.into(),
     }
 }
@@ -119,7 +118,12 @@ pub async fn query_async(
     let manifest = read_manifest(root)?;
     let ctx = session(options)?;
     register_store(&ctx, root, &manifest)?;
-    let fail = |e| crate::derive::query_failure("query", options, e);
+    let fail = |e: datafusion::error::DataFusionError| match crate::derive::query_failure(
+        "query", options, e,
+    ) {
+        EngineError::Query { source, .. } => refused(format!("the query failed: {source}")),
+        other => other,
+    };
     let gate = SQLOptions::new()
         .with_allow_ddl(false)
         .with_allow_dml(false)

@@ -81,6 +81,9 @@ pub fn session(options: &EngineOptions) -> Result<SessionContext, EngineError> {
     for f in crate::udf::udfs() {
         ctx.register_udf(f);
     }
+    for f in crate::udf::udwfs() {
+        ctx.register_udwf(f);
+    }
     Ok(ctx)
 }
 

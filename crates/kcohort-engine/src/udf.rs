@@ -11,6 +11,13 @@ use datafusion::logical_expr::{
 };
 use std::sync::Arc;
 
+/// Every user-defined window function of kcohort.
+pub fn udwfs() -> Vec<datafusion::logical_expr::WindowUDF> {
+    vec![datafusion::logical_expr::WindowUDF::from(
+        crate::episode_window::PotassiumEpisodeMachine::new(),
+    )]
+}
+
 /// Every user-defined function of kcohort.
 pub fn udfs() -> Vec<ScalarUDF> {
     vec![

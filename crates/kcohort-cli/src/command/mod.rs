@@ -9,6 +9,7 @@ mod run;
 pub mod sql;
 mod stats;
 mod synth;
+mod tables;
 
 use clap::{Parser, Subcommand};
 
@@ -44,6 +45,8 @@ pub enum Command {
     Run(run::RunArgs),
     /// Run one read-only SQL query over a store's tables and derived tables.
     Sql(sql::SqlArgs),
+    /// List the tables of a store a query can name, with their columns and descriptions.
+    Tables(tables::TablesArgs),
     /// Statistics on any table of your own (CSV or Parquet): proportions, rates, ratios, survival, Cox, charts.
     Stats(stats::StatsArgs),
 }
@@ -54,6 +57,7 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::InitStudy(args) => init_study::run(args),
         Command::Derive(args) => derive::run(args),
         Command::Sql(args) => sql::run(args),
+        Command::Tables(args) => tables::run(args),
         Command::Report(args) => report::run(args),
         Command::Run(args) => run::run(args),
         Command::Stats(args) => stats::run(args),
