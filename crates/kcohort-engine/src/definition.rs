@@ -87,6 +87,11 @@ pub const DEFINITIONS: &[Definition] = &[
         file: "episode_register.sql",
         sql: include_str!("../../../queries/episode_register.sql"),
     },
+    Definition {
+        table: "new_user_cohorts",
+        file: "new_user_cohorts.sql",
+        sql: include_str!("../../../queries/new_user_cohorts.sql"),
+    },
 ];
 
 fn query_error(definition: &str, e: datafusion::error::DataFusionError) -> EngineError {

@@ -9,7 +9,7 @@
 
 use crate::analyte::Analyte;
 use crate::code::{is_valid_atc, is_valid_loinc};
-pub use crate::study_rules::{Attribution, Conditions, Exposure, Outcomes};
+pub use crate::study_rules::{Attribution, Cohort, Conditions, Exposure, Outcomes};
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
 use std::fmt;
@@ -33,6 +33,7 @@ pub struct Study {
     pub conditions: Conditions,
     pub attribution: Attribution,
     pub outcomes: Outcomes,
+    pub cohort: Cohort,
 }
 
 /// Where the data come from.
@@ -285,6 +286,7 @@ impl Default for Study {
             conditions: Conditions::default(),
             attribution: Attribution::default(),
             outcomes: Outcomes::default(),
+            cohort: Cohort::default(),
         }
     }
 }
@@ -586,6 +588,16 @@ hypoglycemia_below_mg_dl = 70
 hypoglycemia_window_hours = 6
 # Death within this many days of onset. Allowed: above 0, at most 3650.
 death_within_days = 30
+
+[cohort]
+# New-user cohorts per drug class (queries/new_user_cohorts.sql; DOMAIN.md section 4).
+# Intention-to-treat follow-up ends this many days after entry. Allowed: above 0, at most 3650.
+horizon_days = 90
+# Baseline covariates come from this many days before entry (never after it). Allowed: above 0,
+# at most 3650.
+baseline_days = 365
+# Recent AKI: an AKI result within this many days before entry. Allowed: above 0, at most 3650.
+recent_aki_days = 30
 "#;
 
 /// One value out of its allowed range.
@@ -904,6 +916,7 @@ impl Study {
             &self.attribution,
             &self.outcomes,
         );
+        crate::study_rules::validate_cohort(&mut c, &self.cohort);
 
         if c.problems.is_empty() {
             Ok(())

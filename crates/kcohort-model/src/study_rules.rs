@@ -162,6 +162,38 @@ impl Default for Outcomes {
     }
 }
 
+/// New-user cohorts (`queries/new_user_cohorts.sql`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(default, deny_unknown_fields)]
+pub struct Cohort {
+    /// Intention-to-treat follow-up: this many days from entry.
+    pub horizon_days: f64,
+    /// Baseline covariates come from this many days before entry.
+    pub baseline_days: f64,
+    /// Recent AKI: an AKI result this many days before entry.
+    pub recent_aki_days: f64,
+}
+
+impl Default for Cohort {
+    fn default() -> Self {
+        Cohort {
+            horizon_days: 90.0,
+            baseline_days: 365.0,
+            recent_aki_days: 30.0,
+        }
+    }
+}
+
+pub(crate) fn validate_cohort(c: &mut Checker, cohort: &Cohort) {
+    for (key, value) in [
+        ("cohort.horizon_days", cohort.horizon_days),
+        ("cohort.baseline_days", cohort.baseline_days),
+        ("cohort.recent_aki_days", cohort.recent_aki_days),
+    ] {
+        c.range(key, value, 0.0, true, 3650.0);
+    }
+}
+
 /// Longest window of these rules, in hours (ten years).
 const LONGEST_HOURS: f64 = 87_600.0;
 

@@ -124,7 +124,7 @@ fn u_chart_svg(points: &[ChartMonth], k: Option<u64>) -> String {
                 };
                 c.marker(x, r, shape, class, &title);
             }
-            (None, Some(k)) if p.cell.days_at_risk > 0.0 => {
+            (None, Some(k)) if p.cell.days_at_risk > 0.0 && p.cell.events == Count::Small => {
                 let lo = PER_DAYS / p.cell.days_at_risk;
                 let hi = (k - 1) as f64 * PER_DAYS / p.cell.days_at_risk;
                 c.range_bar(x, lo, hi, "suppressed", &format!("{}: fewer than {k} episodes (suppressed); the bar spans the possible rates", p.month));
