@@ -9,7 +9,8 @@
 --      class sets them, onset - era_start <= started_within_days (trimethoprim 14 days) and
 --      onset - era_start >= min_exposure_days (heparins 3 days). Of several such eras the one
 --      that started last is the evidence. The class `potassium` (supplements and IV
---      potassium) is the iatrogenic cause.
+--      potassium) is the iatrogenic cause. Comparator classes (cause = false in the study, e.g.
+--      calcium-channel blockers) are never causes.
 --  acute_kidney_injury (group 'kidney'): a kidney_function result with aki collected from
 --      $aki_before_hours (168) before to $aki_after_hours (24) after onset (inclusive); the
 --      evidence is the highest stage, then the earliest.
@@ -37,6 +38,7 @@ CREATE VIEW drug_class_windows AS
 SELECT drug_class, MIN(lookback_us) AS lookback_us, MIN(started_within_us) AS started_within_us,
        MIN(min_exposure_us) AS min_exposure_us
 FROM $drug_class_codes
+WHERE is_cause = 1
 GROUP BY drug_class;
 
 CREATE VIEW episode_drug_causes AS

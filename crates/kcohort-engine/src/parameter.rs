@@ -289,7 +289,8 @@ impl Parameters {
 /// the keys of `[exposure]`, `[conditions]`, `[attribution]` and `[outcomes]` without their
 /// section; windows in days or hours become intervals (`$washout_days`, `$lab_window_hours`);
 /// `$drug_class_codes` (drug_class, atc_prefix, and the class's windows in microseconds:
-/// administer_us, lookback_us, started_within_us, min_exposure_us; one row per class and code), `$potassium_lowering_codes`
+/// administer_us, lookback_us, started_within_us, min_exposure_us, and is_cause (1, or 0 for a
+/// comparator class); one row per class and code), `$potassium_lowering_codes`
 /// (treatment_class, atc_prefix) and `$adrenal_icd10` (codes without their dot).
 fn context_parameters(p: &mut Parameters, study: &Study) {
     let x = &study.exposure;
@@ -367,6 +368,7 @@ fn context_parameters(p: &mut Parameters, study: &Study) {
                 micros(set.lookback_hours.unwrap_or(a.drug_lookback_hours)),
                 micros(24.0 * set.started_within_days.unwrap_or(NO_LIMIT_HOURS / 24.0)),
                 micros(24.0 * set.min_exposure_days.unwrap_or(0.0)),
+                ParamValue::Int(i64::from(set.is_cause())),
             ]);
         }
     }
@@ -380,6 +382,7 @@ fn context_parameters(p: &mut Parameters, study: &Study) {
                 "lookback_us",
                 "started_within_us",
                 "min_exposure_us",
+                "is_cause",
             ],
             rows: drug_rows,
         },

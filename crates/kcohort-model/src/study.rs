@@ -126,6 +126,10 @@ pub struct DrugClass {
     /// `exposure.administer_default_hours`).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub administer_hours: Option<f64>,
+    /// False for a comparator class: it has exposure eras and new-user cohorts but is never a
+    /// cause of an episode. Default true.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub cause: Option<bool>,
 }
 
 impl DrugClass {
@@ -137,7 +141,18 @@ impl DrugClass {
             started_within_days: None,
             min_exposure_days: None,
             administer_hours: None,
+            cause: None,
         }
+    }
+
+    fn comparator_only(mut self) -> DrugClass {
+        self.cause = Some(false);
+        self
+    }
+
+    /// Whether the class counts in cause attribution.
+    pub fn is_cause(&self) -> bool {
+        self.cause.unwrap_or(true)
     }
 
     fn started_within(mut self, days: f64) -> DrugClass {
@@ -261,6 +276,11 @@ pub fn default_drug_classes() -> BTreeMap<String, DrugClass> {
         ),
         ("pentamidine", DrugClass::new("pentamidine", &["P01CX01"])),
         ("drospirenone", DrugClass::new("drospirenone", &["G03AA12"])),
+        (
+            "calcium_channel_blocker",
+            DrugClass::new("dihydropyridine calcium-channel blockers", &["C08CA"])
+                .comparator_only(),
+        ),
     ]
     .into_iter()
     .map(|(k, v)| (k.to_string(), v))
@@ -460,6 +480,14 @@ atc = ["P01CX01"]
 # Drospirenone with ethinylestradiol.
 label = "drospirenone"
 atc = ["G03AA12"]
+
+[drug_classes.calcium_channel_blocker]
+# Dihydropyridine calcium-channel blockers (amlodipine C08CA01, ...): the usual active
+# comparator of RAAS-inhibitor initiators (DOMAIN.md section 4).
+label = "dihydropyridine calcium-channel blockers"
+atc = ["C08CA"]
+# A comparator class: exposure eras and new-user cohorts, never a cause of an episode.
+cause = false
 
 [lab_loinc]
 # LOINC codes of the co-analytes the lab-derived conditions read. An analyte left out takes every

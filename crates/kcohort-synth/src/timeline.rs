@@ -1002,10 +1002,14 @@ impl Sim<'_> {
             let enc = self.push_encounter(EncounterClass::Inpatient, seg_unit, from, to, status);
             stay.segments[i].2 = enc;
         }
-        self.tally.stays += 1;
-        self.tally.transfers += n as u64 - 1;
-        if end >= sc.extract_end {
-            self.tally.open_admissions += 1;
+        // A stay cut to nothing (a death before its first segment) writes no encounter and is
+        // not counted.
+        if n > 0 {
+            self.tally.stays += 1;
+            self.tally.transfers += n as u64 - 1;
+            if end >= sc.extract_end {
+                self.tally.open_admissions += 1;
+            }
         }
         if died && end < sc.extract_end {
             self.rows.death_at = Some(end);

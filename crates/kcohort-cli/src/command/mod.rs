@@ -1,6 +1,7 @@
 //! The commands of `kcohort` and their arguments.
 
 mod bench;
+mod compare;
 mod derive;
 mod ingest;
 mod init_study;
@@ -43,6 +44,8 @@ pub enum Command {
     Report(report::ReportArgs),
     /// Ingest, derive and report in one go: the monthly job on a new extract.
     Run(run::RunArgs),
+    /// Compare new users of a drug class with new users of a comparator class: risks, ratios, Cox.
+    Compare(compare::CompareArgs),
     /// Run one read-only SQL query over a store's tables and derived tables.
     Sql(sql::SqlArgs),
     /// List the tables of a store a query can name, with their columns and descriptions.
@@ -57,6 +60,7 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::InitStudy(args) => init_study::run(args),
         Command::Derive(args) => derive::run(args),
         Command::Sql(args) => sql::run(args),
+        Command::Compare(args) => compare::run(args),
         Command::Tables(args) => tables::run(args),
         Command::Report(args) => report::run(args),
         Command::Run(args) => run::run(args),
