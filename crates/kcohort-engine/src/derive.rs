@@ -235,27 +235,40 @@ pub async fn derive_async(
     let generation = manifest.generation + 1;
     let mut written: Vec<WrittenTable> = Vec::new();
     let mut reports = Vec::new();
-    for d in DEFINITIONS {
-        let started = Instant::now();
-        let frame = plan_definition(&ctx, d, &parameters).await?;
-        let on_error = |e| query_failure(d.file, options, e);
-        let stream = frame.execute_stream().await.map_err(on_error)?;
-        let relative = derived_relative(d.table, generation, &fingerprint);
-        let table = write_table(root, &relative, stream, &on_error).await?;
-        let schema = crate::session::parquet_schema(&table.temp_path)?;
-        register_parquet_files(
-            &ctx,
-            d.table,
-            std::slice::from_ref(&table.temp_path),
-            schema,
-        )?;
-        reports.push(DerivedTableReport {
-            table: d.table.to_string(),
-            rows: table.rows,
-            seconds: started.elapsed().as_secs_f64(),
-            path: relative,
-        });
-        written.push(table);
+    let run = async {
+        for d in DEFINITIONS {
+            let started = Instant::now();
+            let frame = plan_definition(&ctx, d, &parameters).await?;
+            let on_error = |e| query_failure(d.file, options, e);
+            let stream = frame.execute_stream().await.map_err(on_error)?;
+            let relative = derived_relative(d.table, generation, &fingerprint);
+            let table = write_table(root, &relative, stream, &on_error).await?;
+            let schema = crate::session::parquet_schema(&table.temp_path)?;
+            register_parquet_files(
+                &ctx,
+                d.table,
+                std::slice::from_ref(&table.temp_path),
+                schema,
+            )?;
+            reports.push(DerivedTableReport {
+                table: d.table.to_string(),
+                rows: table.rows,
+                seconds: started.elapsed().as_secs_f64(),
+                path: relative,
+            });
+            written.push(table);
+        }
+        Ok::<(), EngineError>(())
+    };
+    if let Err(e) = run.await {
+        // Nothing was committed: remove this run's temporary files, so a failed derive leaves
+        // the store exactly as it was.
+        for d in DEFINITIONS {
+            let relative = derived_relative(d.table, generation, &fingerprint);
+            let _ =
+                std::fs::remove_file(root.join(kcohort_model::store_layout::temp_name(&relative)));
+        }
+        return Err(e);
     }
 
     let mut next = manifest.clone();
