@@ -31,6 +31,8 @@ pub enum ParamValue {
     Instant(i64),
     /// A whole number (`CAST(<n> AS BIGINT)`).
     Int(i64),
+    /// Free text, written as a string literal with its quotes doubled (researchers' `--param`).
+    Text(String),
     /// A non-empty list of codes (LOINC, ATC): written as `'a', 'b'` for `IN (...)` lists and
     /// variadic functions.
     Codes(Vec<String>),
@@ -60,6 +62,7 @@ impl ParamValue {
             ParamValue::Number(x) => Err(format!("{x} is not a finite number")),
             ParamValue::Micros(us) => Ok(format!("INTERVAL '{us} microseconds'")),
             ParamValue::Int(n) => Ok(format!("CAST({n} AS BIGINT)")),
+            ParamValue::Text(t) => Ok(format!("'{}'", t.replace('\'', "''"))),
             ParamValue::Instant(us) => Ok(format!(
                 "arrow_cast(CAST({us} AS BIGINT), 'Timestamp(Microsecond, Some(\"UTC\"))')"
             )),
@@ -268,10 +271,11 @@ impl Parameters {
                         .or(self.values.get(name))
                         .ok_or_else(|| {
                             let known: Vec<&str> = self.names().collect();
-                            fail(format!(
-                                "unknown parameter `${name}`; known: {}",
-                                known.join(", ")
-                            ))
+                            fail(if known.is_empty() {
+                                format!("unknown parameter `${name}`: none is given")
+                            } else {
+                                format!("unknown parameter `${name}`; known: {}", known.join(", "))
+                            })
                         })?;
                     let literal = value
                         .to_sql()
@@ -473,6 +477,16 @@ mod tests {
         assert!(bad.bind("t", "$n").is_err());
         bad.insert("e", ParamValue::Codes(vec![]));
         assert!(bad.bind("t", "$e").is_err());
+    }
+
+    #[test]
+    fn text_is_a_quoted_literal() {
+        let mut p = Parameters::new();
+        p.insert("unit", ParamValue::Text("Ward 'A'".into()));
+        assert_eq!(
+            p.bind("q", "u = $unit -- '$unit'").unwrap(),
+            "u = 'Ward ''A''' -- '$unit'"
+        );
     }
 
     #[test]

@@ -602,30 +602,24 @@ pub fn build_report(input: &ReportInput, options: &ReportOptions) -> Result<Repo
         let x = by_cause[&b.cause].cmp(&by_cause[&a.cause]);
         x.then_with(|| a.cause.cmp(&b.cause))
     });
-    let by_drug = count_by(&confirmed, |e| e.drug_classes.clone());
-    let mut drug_classes_at_onset: Vec<ShareCell> = by_drug
+    // Most often active first, then by name.
+    let mut by_drug: Vec<(String, u64)> = count_by(&confirmed, |e| e.drug_classes.clone())
+        .into_iter()
+        .collect();
+    by_drug.sort_by(|(a, x), (b, y)| y.cmp(x).then_with(|| a.cmp(b)));
+    let drug_classes_at_onset: Vec<ShareCell> = by_drug
         .iter()
-        .map(|(class, &x)| {
+        .map(|(class, x)| {
             share_cell(
                 &cause_label(class, &labels),
-                s.count(x),
-                x,
+                s.count(*x),
+                *x,
                 total_count,
                 n,
                 lv,
             )
         })
         .collect();
-    drug_classes_at_onset.sort_by(|a, b| {
-        let key = |c: &ShareCell| {
-            labels
-                .iter()
-                .find(|(_, l)| **l == c.label)
-                .map(|(k, _)| by_drug[k])
-                .unwrap_or(0)
-        };
-        key(b).cmp(&key(a)).then_with(|| a.label.cmp(&b.label))
-    });
 
     // Process and safety indicators.
     let indicator = |label: &str, den: Vec<&&EpisodeFacts>, hit: &dyn Fn(&EpisodeFacts) -> bool| {

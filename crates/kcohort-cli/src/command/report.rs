@@ -52,7 +52,7 @@ pub fn last_complete_month(zone: &SiteZone, extract_end_us: i64) -> String {
     before[0].0.clone()
 }
 
-fn month_window(zone: &SiteZone, month: &str, back: usize) -> anyhow::Result<Vec<String>> {
+fn month_window(month: &str, back: usize) -> anyhow::Result<Vec<String>> {
     let (y, m) = month
         .split_once('-')
         .and_then(|(y, m)| Some((y.parse::<i32>().ok()?, m.parse::<u32>().ok()?)))
@@ -65,7 +65,6 @@ fn month_window(zone: &SiteZone, month: &str, back: usize) -> anyhow::Result<Vec
         (y, m) = if m == 1 { (y - 1, 12) } else { (y, m - 1) };
     }
     out.reverse();
-    let _ = zone;
     Ok(out)
 }
 
@@ -86,11 +85,11 @@ fn split_list(text: Option<String>) -> Vec<String> {
 /// Read everything the report needs from the store.
 pub fn read_input(
     store: &Path,
+    manifest: &Manifest,
     month: &str,
     months: &[String],
     study: &Study,
 ) -> anyhow::Result<ReportInput> {
-    let manifest: Manifest = kcohort_engine::read_manifest(store)?;
     if !manifest.derived.contains_key("unit_months")
         || !manifest.derived.contains_key("episode_register")
     {
@@ -307,13 +306,13 @@ pub fn write_report(
         Some(m) => m.clone(),
         None => last_complete_month(&zone, end),
     };
-    let months = month_window(&zone, &month, settings.months_back)?;
+    let months = month_window(&month, settings.months_back)?;
     if let Some(k) = settings.suppress_below
         && k < 3
     {
         bail!("--suppress-below {k}: use 3 or more (with 2, `<2` would mean exactly 1)");
     }
-    let input = read_input(store, &month, &months, study)?;
+    let input = read_input(store, &manifest, &month, &months, study)?;
     let options = ReportOptions {
         suppression: Suppression {
             below: settings.suppress_below,

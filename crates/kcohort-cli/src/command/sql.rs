@@ -3,7 +3,7 @@
 
 use anyhow::{Context, bail};
 use clap::{Args, ValueEnum};
-use kcohort_engine::{EngineOptions, QueryLimits};
+use kcohort_engine::{EngineOptions, ParamValue, Parameters, QueryLimits};
 use std::path::PathBuf;
 use std::time::Duration;
 
@@ -41,11 +41,11 @@ pub struct SqlArgs {
     pub time_limit: u64,
 }
 
-/// Replace `$name` with the literal of a `--param name=value` (numbers as numbers, anything
-/// else as a quoted string with quotes doubled). Strings and comments are left alone by the
-/// engine's binder; this one is simpler: it refuses a `$` it cannot bind.
+/// Bind `$name` to each `--param name=value` with the engine's binder (numbers as numbers,
+/// anything else as a quoted string; `$` inside strings and comments is left alone; an unbound
+/// `$name` is an error naming the known ones).
 fn bind_params(sql: &str, params: &[String]) -> anyhow::Result<String> {
-    let mut values = Vec::new();
+    let mut bound = Parameters::new();
     for p in params {
         let Some((name, value)) = p.split_once('=') else {
             bail!("--param `{p}`: expected NAME=VALUE");
@@ -53,24 +53,19 @@ fn bind_params(sql: &str, params: &[String]) -> anyhow::Result<String> {
         if name.is_empty() || !name.chars().all(|c| c.is_ascii_alphanumeric() || c == '_') {
             bail!("--param `{p}`: the name must be letters, digits and `_`");
         }
-        let literal = if value.parse::<f64>().is_ok_and(f64::is_finite) {
-            value.to_string()
-        } else {
-            format!("'{}'", value.replace('\'', "''"))
+        let literal = match value.parse::<f64>() {
+            Ok(x) if x.is_finite() => ParamValue::Number(x),
+            _ => ParamValue::Text(value.to_string()),
         };
-        values.push((name.to_string(), literal));
+        bound.insert(name, literal);
     }
-    // Longest names first, so `$ab` is not bound as `$a` followed by `b`.
-    values.sort_by_key(|(n, _)| std::cmp::Reverse(n.len()));
-    let mut out = sql.to_string();
-    for (name, literal) in &values {
-        out = out.replace(&format!("${name}"), literal);
-    }
-    if let Some(i) = out.find('$') {
-        let rest: String = out[i..].chars().take(30).collect();
-        bail!("the query has an unbound parameter near `{rest}`; give it with --param NAME=VALUE");
-    }
-    Ok(out)
+    // An unbound name is the user's to fix (exit 1), not a fault of a shipped definition.
+    bound.bind("the query", sql).map_err(|e| match e {
+        kcohort_engine::EngineError::Parameter { message, .. } => {
+            anyhow::anyhow!("{message}; give each one with --param NAME=VALUE")
+        }
+        other => anyhow::anyhow!("{other}"),
+    })
 }
 
 pub fn run(args: SqlArgs) -> anyhow::Result<()> {
@@ -113,7 +108,7 @@ mod tests {
         let p = vec!["k=5.5".to_string(), "unit=Ward 'A'".to_string()];
         assert_eq!(
             bind_params("v > $k AND unit = $unit", &p).unwrap(),
-            "v > 5.5 AND unit = 'Ward ''A'''"
+            "v > CAST(5.5 AS DOUBLE) AND unit = 'Ward ''A'''"
         );
         assert!(bind_params("v > $missing", &[]).is_err());
         assert!(bind_params("x", &["bad".to_string()]).is_err());
