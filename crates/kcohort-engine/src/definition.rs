@@ -78,6 +78,11 @@ pub const DEFINITIONS: &[Definition] = &[
         sql: include_str!("../../../queries/episode_outcomes.sql"),
     },
     Definition {
+        table: "drug_event_listing",
+        file: "drug_event_listing.sql",
+        sql: include_str!("../../../queries/drug_event_listing.sql"),
+    },
+    Definition {
         table: "unit_months",
         file: "unit_months.sql",
         sql: include_str!("../../../queries/unit_months.sql"),

@@ -331,6 +331,7 @@ fn context_parameters(p: &mut Parameters, study: &Study) {
             hours(o.hypoglycemia_window_hours),
         ),
         ("death_within_days", days(o.death_within_days)),
+        ("dechallenge_days", days(o.dechallenge_days)),
         ("cohort_horizon_days", days(study.cohort.horizon_days)),
         ("cohort_baseline_days", days(study.cohort.baseline_days)),
         ("cohort_recent_aki_days", days(study.cohort.recent_aki_days)),

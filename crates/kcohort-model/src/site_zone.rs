@@ -83,6 +83,18 @@ impl SiteZone {
         }
     }
 
+    /// The local time of a UTC instant (microseconds), `YYYY-MM-DD HH:MM`.
+    pub fn local_text(&self, instant_us: i64) -> String {
+        let Some(utc) = chrono::DateTime::from_timestamp_micros(instant_us) else {
+            return String::new();
+        };
+        let local = match self {
+            SiteZone::Named(tz) => utc.with_timezone(tz).naive_local(),
+            SiteZone::Fixed(off) => utc.with_timezone(off).naive_local(),
+        };
+        local.format("%Y-%m-%d %H:%M").to_string()
+    }
+
     /// Local months from the month of `from_us` to the month of `to_us`, inclusive: each as
     /// (`YYYY-MM`, start, end) with start and end the UTC instants (microseconds) of local
     /// midnight on its first day and on the next month's first day.
@@ -109,6 +121,23 @@ impl SiteZone {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn local_text_follows_the_zone_and_its_daylight_saving() {
+        // Vienna is UTC+1 in winter and UTC+2 in summer (EU rules: the change is at 01:00 UTC
+        // on the last Sunday of March and October; common practice).
+        let z = SiteZone::parse("Europe/Vienna").unwrap();
+        let us = |s: &str| {
+            chrono::NaiveDateTime::parse_from_str(s, "%Y-%m-%dT%H:%M")
+                .unwrap()
+                .and_utc()
+                .timestamp_micros()
+        };
+        assert_eq!(z.local_text(us("2024-01-15T12:00")), "2024-01-15 13:00");
+        assert_eq!(z.local_text(us("2024-07-15T12:00")), "2024-07-15 14:00");
+        let f = SiteZone::parse("-05:00").unwrap();
+        assert_eq!(f.local_text(us("2024-01-01T03:00")), "2023-12-31 22:00");
+    }
 
     #[test]
     fn local_months_start_at_local_midnight_across_daylight_saving() {

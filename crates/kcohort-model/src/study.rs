@@ -616,6 +616,9 @@ hypoglycemia_below_mg_dl = 70
 hypoglycemia_window_hours = 6
 # Death within this many days of onset. Allowed: above 0, at most 3650.
 death_within_days = 30
+# The drug-event listing (queries/drug_event_listing.sql) reads whether the suspect drug was
+# stopped or continued this many days after onset (dechallenge). Allowed: above 0, at most 3650.
+dechallenge_days = 7
 
 [cohort]
 # New-user cohorts per drug class (queries/new_user_cohorts.sql; DOMAIN.md section 4).

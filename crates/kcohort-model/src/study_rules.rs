@@ -149,6 +149,8 @@ pub struct Outcomes {
     pub hypoglycemia_window_hours: f64,
     /// Death within this many days of onset.
     pub death_within_days: f64,
+    /// The drug-event listing's dechallenge looks this many days after onset.
+    pub dechallenge_days: f64,
 }
 
 impl Default for Outcomes {
@@ -158,6 +160,7 @@ impl Default for Outcomes {
             hypoglycemia_below_mg_dl: 70.0,
             hypoglycemia_window_hours: 6.0,
             death_within_days: 30.0,
+            dechallenge_days: 7.0,
         }
     }
 }
@@ -363,6 +366,7 @@ pub(crate) fn validate(
             LONGEST_HOURS,
         ),
         ("outcomes.death_within_days", o.death_within_days, days),
+        ("outcomes.dechallenge_days", o.dechallenge_days, days),
     ] {
         c.range(key, value, 0.0, true, high);
     }

@@ -6,7 +6,7 @@ use crate::suppression::Count;
 use crate::svg::{Chart, escape, trim_number};
 use std::fmt::Write;
 
-const STYLE: &str = r#"
+pub(crate) const STYLE: &str = r#"
 body { font: 15px/1.45 Georgia, 'Times New Roman', serif; color: #1d2330; margin: 0 auto; max-width: 980px; padding: 24px; background: #fbfaf7; }
 h1 { font-size: 26px; margin: 0 0 4px; } h2 { font-size: 19px; margin: 32px 0 8px; border-bottom: 1px solid #c9c3b6; padding-bottom: 4px; }
 .caution { border-left: 5px solid #7a5c00; background: #f6efd9; padding: 8px 12px; margin: 12px 0; }

@@ -9,6 +9,7 @@
 
 pub mod html;
 pub mod input;
+pub mod listing_page;
 pub mod monthly;
 pub mod suppression;
 pub mod svg;

@@ -2,9 +2,10 @@
 
 mod bench;
 mod compare;
-mod derive;
+pub mod derive;
 mod ingest;
 mod init_study;
+mod listing;
 pub mod report;
 mod run;
 pub mod sql;
@@ -46,6 +47,8 @@ pub enum Command {
     Run(run::RunArgs),
     /// Compare new users of a drug class with new users of a comparator class: risks, ratios, Cox.
     Compare(compare::CompareArgs),
+    /// The drug-linked event listing of a drug-safety committee for one suspect class (HTML, CSV).
+    Listing(listing::ListingArgs),
     /// Run one read-only SQL query over a store's tables and derived tables.
     Sql(sql::SqlArgs),
     /// List the tables of a store a query can name, with their columns and descriptions.
@@ -62,6 +65,7 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Sql(args) => sql::run(args),
         Command::Compare(args) => compare::run(args),
         Command::Tables(args) => tables::run(args),
+        Command::Listing(args) => listing::run(args),
         Command::Report(args) => report::run(args),
         Command::Run(args) => run::run(args),
         Command::Stats(args) => stats::run(args),
