@@ -12,6 +12,8 @@
 --                    30), the extract end;
 --       intention-to-treat: the first of the outcome, death, entry_at + $cohort_horizon_days
 --                    (default 90), the extract end.
+--     on_drug_days: days from entry to era_end + $dispense_grace_days (or the extract end): the
+--     time on drug, for the time-varying exposure model.
 --     Each has its end_at, event ('episode', 'death' or 'censored'; an outcome and a death at the
 --     same instant count as the outcome) and follow-up in days.
 --  3. in_episode_at_entry: entry_at falls inside an episode (onset_at <= entry_at <= end_at);
@@ -20,6 +22,8 @@
 --       age_years, age_band   calendar year of entry (UTC) minus birth_year; bands 18-44, 45-64,
 --                             65-74, 75+ ('under 18' below);
 --       sex;
+--       egfr_band             'below 45' / '45 or more' / 'unknown' with the study's
+--                             $ckd_egfr_below (the eGFR-interaction strata);
 --       baseline_egfr, egfr_category: median CKD-EPI 2021 eGFR of the creatinine results in
 --                             [entry - $cohort_baseline_days, entry) and its KDIGO category
 --                             ('unknown' without one);
@@ -32,7 +36,7 @@
 --                             n_other_classes their number;
 --       baseline_potassium    the latest used potassium result in the baseline window.
 --
--- PARAMETERS: $dispense_grace_days, $cohort_horizon_days, $cohort_baseline_days,
+-- PARAMETERS: $dispense_grace_days, $ckd_egfr_below, $cohort_horizon_days, $cohort_baseline_days,
 -- $cohort_recent_aki_days, $extract_end; the views of earlier definitions (potassium_results).
 
 CREATE VIEW cohort_entries AS
@@ -138,6 +142,7 @@ SELECT
     END AS itt_event,
     (CAST(least(f.first_episode_at, f.death_at, f.itt_limit) AS BIGINT) - f.entry_us)
         / 86400000000.0 AS itt_days,
+    (CAST(f.as_treated_limit AS BIGINT) - f.entry_us) / 86400000000.0 AS on_drug_days,
     f.sex,
     f.age_years,
     CASE
@@ -149,12 +154,22 @@ SELECT
     END AS age_band,
     k.baseline_egfr,
     coalesce(kdigo_gfr_category(k.baseline_egfr), 'unknown') AS egfr_category,
+    CASE
+        WHEN k.baseline_egfr IS NULL THEN 'unknown'
+        WHEN k.baseline_egfr < $ckd_egfr_below THEN 'below ' || t.threshold
+        ELSE t.threshold || ' or more'
+    END AS egfr_band,
     coalesce(k.recent_aki, false) AS recent_aki,
     d.patient_id IS NOT NULL AS diabetes,
     coalesce(x.other_classes, '') AS other_classes,
     coalesce(x.n_other_classes, CAST(0 AS BIGINT)) AS n_other_classes,
     b.baseline_potassium
 FROM cohort_followed f
+CROSS JOIN (
+    SELECT CASE WHEN $ckd_egfr_below = floor($ckd_egfr_below)
+                THEN CAST(CAST($ckd_egfr_below AS BIGINT) AS VARCHAR)
+                ELSE CAST($ckd_egfr_below AS VARCHAR) END AS threshold
+) t
 LEFT JOIN cohort_baseline_kidney k ON k.drug_class = f.drug_class AND k.patient_id = f.patient_id
 LEFT JOIN cohort_diabetes d ON d.drug_class = f.drug_class AND d.patient_id = f.patient_id
 LEFT JOIN cohort_other_classes x ON x.drug_class = f.drug_class AND x.patient_id = f.patient_id

@@ -6,11 +6,17 @@
 //! - [`monthly`]: the numbers (rates, u-charts, funnel, shares, indicators).
 //! - [`suppression`]: small-cell and complementary suppression.
 //! - [`svg`]: the chart primitives; [`html`]: the page; [`tables`]: the flat tables.
+//! - [`compare_page`]: the page of a two-arm new-user comparison; [`cause_table`]: risk ratios
+//!   by cause category (page and CSV); [`ratio_axis`]: the log axis and interval marks they share.
 
+pub mod cause_table;
+pub mod compare_page;
 pub mod html;
 pub mod input;
 pub mod listing_page;
 pub mod monthly;
+mod page;
+pub mod ratio_axis;
 pub mod suppression;
 pub mod svg;
 pub mod tables;

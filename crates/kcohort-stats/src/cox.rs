@@ -218,7 +218,10 @@ pub fn fit(data: &CoxData<'_>, options: &CoxOptions) -> Result<CoxFit, StatsErro
             names[j]
         );
         return Err(if converged {
-            StatsError::NotEstimable(detail)
+            StatsError::NotEstimableCovariate {
+                covariate: names[j].to_string(),
+                detail,
+            }
         } else {
             StatsError::NoConvergence { iterations, detail }
         });
@@ -315,11 +318,14 @@ pub fn fit(data: &CoxData<'_>, options: &CoxOptions) -> Result<CoxFit, StatsErro
 }
 
 fn singular(names: &[&str], j: usize) -> StatsError {
-    StatsError::NotEstimable(format!(
-        "the information matrix is singular at covariate `{}`: it is constant within every risk set, or a linear \
-         combination of the covariates listed before it; hint: drop `{}` or recode it",
-        names[j], names[j]
-    ))
+    StatsError::NotEstimableCovariate {
+        covariate: names[j].to_string(),
+        detail: format!(
+            "the information matrix is singular at covariate `{}`: it is constant within every risk set, or a linear \
+             combination of the covariates listed before it; hint: drop `{}` or recode it",
+            names[j], names[j]
+        ),
+    }
 }
 
 /// V M V for symmetric V and M (row-major p × p).

@@ -13,6 +13,10 @@ pub enum StatsError {
     /// The data cannot support the estimate (e.g. no events, a zero cell where a ratio needs one).
     #[error("{0}")]
     NotEstimable(String),
+    /// One covariate of a model cannot be estimated (separation or collinearity); a caller may
+    /// leave it out and fit again.
+    #[error("{detail}")]
+    NotEstimableCovariate { covariate: String, detail: String },
     /// An iterative fit did not converge.
     #[error("the fit did not converge after {iterations} iterations: {detail}")]
     NoConvergence { iterations: usize, detail: String },

@@ -55,7 +55,8 @@ pub struct CompareArgs {
     /// another RAAS inhibitor). Users of the other arm's class at entry are always left out.
     #[arg(long, value_delimiter = ',')]
     pub exclude_users_of: Vec<String>,
-    /// Also write compare.json and arms.csv into this folder.
+    /// Also write compare.html (curves, numbers at risk, forest plot), compare.json and arms.csv
+    /// into this folder.
     #[arg(long)]
     pub out: Option<PathBuf>,
 }
@@ -69,6 +70,8 @@ pub struct Member {
     pub cause: u32,
     pub stratum: String,
     pub covariates: Vec<f64>,
+    /// Days from entry to the end of the era plus grace (time on drug).
+    pub on_drug_days: f64,
 }
 
 /// Names of the Cox covariates after the exposure.
@@ -84,7 +87,7 @@ pub const COVARIATES: &[&str] = &[
     "other potassium-raising classes",
 ];
 
-fn parse_days(text: &str) -> anyhow::Result<f64> {
+pub fn parse_days(text: &str) -> anyhow::Result<f64> {
     let t = text.trim().trim_end_matches('d');
     t.parse::<f64>()
         .ok()
@@ -131,7 +134,7 @@ pub fn read_members(args: &CompareArgs) -> anyhow::Result<Vec<Member>> {
     let sql = format!(
         "SELECT drug_class = '{x}' AS exposed, {days} AS days, {event} AS event, \
          CAST({strata} AS VARCHAR) AS stratum, age_years, sex, egfr_category, recent_aki, diabetes, \
-         n_other_classes \
+         n_other_classes, on_drug_days \
          FROM new_user_cohorts \
          WHERE drug_class IN ('{x}', '{c}') AND NOT in_episode_at_entry AND {excluded} \
            AND patient_id NOT IN (SELECT patient_id FROM new_user_cohorts \
@@ -157,6 +160,7 @@ pub fn read_members(args: &CompareArgs) -> anyhow::Result<Vec<Member>> {
         r.flag("diabetes")?,
         r.number("n_other_classes")?,
     );
+    let on_drug = r.number("on_drug_days")?;
     let mut out = Vec::new();
     for i in 0..r.len() {
         let g = egfr[i].as_deref().unwrap_or("unknown");
@@ -181,6 +185,7 @@ pub fn read_members(args: &CompareArgs) -> anyhow::Result<Vec<Member>> {
             },
             stratum: s[i].clone().unwrap_or_else(|| "missing".into()),
             covariates,
+            on_drug_days: on_drug[i].unwrap_or(0.0).max(0.0),
         });
     }
     for (arm, flag) in [(&x, true), (&c, false)] {
@@ -197,10 +202,44 @@ fn interval(i: &kcohort_stats::Interval) -> Value {
     json!([i.lower, i.upper])
 }
 
+/// Members by stratum, and the two-by-two tables of an episode by the horizon (risk by
+/// counting: over everyone who entered the arm), overall and per stratum in the same order.
+pub fn tables_at(
+    members: &[Member],
+    horizon: f64,
+) -> (BTreeMap<&str, Vec<&Member>>, TwoByTwo, Vec<TwoByTwo>) {
+    let table_of = |ms: &[&Member]| {
+        let cases = |e: bool| {
+            ms.iter()
+                .filter(|m| m.exposed == e && m.cause == 1 && m.days <= horizon)
+                .count() as u64
+        };
+        let total = |e: bool| ms.iter().filter(|m| m.exposed == e).count() as u64;
+        TwoByTwo {
+            exposed_cases: cases(true),
+            exposed_total: total(true),
+            unexposed_cases: cases(false),
+            unexposed_total: total(false),
+        }
+    };
+    let all: Vec<&Member> = members.iter().collect();
+    let mut by_stratum: BTreeMap<&str, Vec<&Member>> = BTreeMap::new();
+    for m in members {
+        by_stratum.entry(m.stratum.as_str()).or_default().push(m);
+    }
+    let tables = by_stratum.values().map(|ms| table_of(ms)).collect();
+    (by_stratum, table_of(&all), tables)
+}
+
 /// Every estimate of the comparison, as JSON.
 pub fn analyse(members: &[Member], horizon: f64, level: ConfidenceLevel) -> anyhow::Result<Value> {
     let arm = |exposed: bool| members.iter().filter(move |m| m.exposed == exposed);
     let mut arms = Vec::new();
+    let mut curves = Vec::new();
+    let ticks: Vec<f64> = kcohort_report::svg::ticks(0.0, horizon, 6)
+        .into_iter()
+        .filter(|t| *t >= 0.0 && *t <= horizon)
+        .collect();
     for exposed in [true, false] {
         let m: Vec<&Member> = arm(exposed).collect();
         let follow: Vec<FollowUp> = m
@@ -228,6 +267,36 @@ pub fn analyse(members: &[Member], horizon: f64, level: ConfidenceLevel) -> anyh
         let cif = step.map_or(0.0, |s| {
             s.cumulative_incidence.first().copied().unwrap_or(0.0)
         });
+        let km_curve: Vec<(f64, f64)> = std::iter::once((0.0, 0.0))
+            .chain(
+                km.steps
+                    .iter()
+                    .filter(|s| s.time <= horizon && s.n_events > 0)
+                    .map(|s| (s.time, 1.0 - s.survival)),
+            )
+            .collect();
+        let cif_curve: Vec<(f64, f64)> = std::iter::once((0.0, 0.0))
+            .chain(
+                aj.steps
+                    .iter()
+                    .filter(|s| s.time <= horizon && s.n_events.first().is_some_and(|&e| e > 0))
+                    .map(|s| {
+                        (
+                            s.time,
+                            s.cumulative_incidence.first().copied().unwrap_or(0.0),
+                        )
+                    }),
+            )
+            .collect();
+        let at_risk: Vec<(f64, usize)> = ticks
+            .iter()
+            .map(|&t| (t, m.iter().filter(|x| x.days >= t).count()))
+            .collect();
+        curves.push(json!({
+            "km_risk": thin(&km_curve, 600),
+            "cumulative_incidence": thin(&cif_curve, 600),
+            "at_risk": at_risk,
+        }));
         let person_days: f64 = m.iter().map(|x| x.days).sum();
         arms.push(json!({
             "exposed": exposed,
@@ -243,23 +312,7 @@ pub fn analyse(members: &[Member], horizon: f64, level: ConfidenceLevel) -> anyh
         }));
     }
 
-    // Risks at the horizon by counting: an episode by the horizon over everyone in the arm.
-    let table_of = |ms: &[&Member]| {
-        let cases = |e: bool| {
-            ms.iter()
-                .filter(|m| m.exposed == e && m.cause == 1 && m.days <= horizon)
-                .count() as u64
-        };
-        let total = |e: bool| ms.iter().filter(|m| m.exposed == e).count() as u64;
-        TwoByTwo {
-            exposed_cases: cases(true),
-            exposed_total: total(true),
-            unexposed_cases: cases(false),
-            unexposed_total: total(false),
-        }
-    };
-    let all: Vec<&Member> = members.iter().collect();
-    let crude = table_of(&all);
+    let (by_stratum, crude, tables) = tables_at(members, horizon);
     let rr = kcohort_stats::risk_ratio::risk_ratio(&crude, ZeroCellCorrection::None, level).ok();
     let rd = kcohort_stats::risk_ratio::risk_difference(
         &crude,
@@ -267,11 +320,6 @@ pub fn analyse(members: &[Member], horizon: f64, level: ConfidenceLevel) -> anyh
         level,
     )
     .ok();
-    let mut by_stratum: BTreeMap<&str, Vec<&Member>> = BTreeMap::new();
-    for m in members {
-        by_stratum.entry(m.stratum.as_str()).or_default().push(m);
-    }
-    let tables: Vec<TwoByTwo> = by_stratum.values().map(|ms| table_of(ms)).collect();
     let mh = kcohort_stats::mantel_haenszel::risk_ratio(&tables, level);
     let strata: Vec<Value> = by_stratum
         .iter()
@@ -306,69 +354,92 @@ pub fn analyse(members: &[Member], horizon: f64, level: ConfidenceLevel) -> anyh
     })
     .ok();
 
-    // Cox: exposure plus the baseline covariates.
-    let p = 1 + COVARIATES.len();
+    // Cox: exposure plus the baseline covariates, one row per member.
     let follow: Vec<FollowUp> = members
         .iter()
         .map(|m| FollowUp::new(m.days, m.cause == 1))
         .collect();
-    let mut x = Vec::with_capacity(members.len() * p);
+    let mut x = Vec::new();
     for m in members {
         x.push(f64::from(u8::from(m.exposed)));
         x.extend_from_slice(&m.covariates);
     }
     let mut names = vec!["exposure"];
     names.extend_from_slice(COVARIATES);
-    // Leave out covariates that cannot be estimated: a constant column, and a yes/no column
-    // whose events all fall on one side (monotone likelihood: a hazard ratio of 0 or infinity).
-    // The exposure always stays; what was left out is reported.
-    let n_events = members.iter().filter(|m| m.cause == 1).count();
-    let mut dropped = Vec::new();
-    let keep: Vec<usize> = (0..p)
-        .filter(|&j| {
-            let column = |i: usize| x[i * p + j];
-            let varies = (0..members.len()).any(|i| column(i) != column(0));
-            let binary = (0..members.len()).all(|i| column(i) == 0.0 || column(i) == 1.0);
-            let events_with = (0..members.len())
-                .filter(|&i| members[i].cause == 1 && column(i) == 1.0)
-                .count();
-            let separated = binary && (events_with == 0 || events_with == n_events);
-            let ok = j == 0 || (varies && !separated);
-            if !ok {
-                dropped.push(names[j]);
+    let cox = cox_json(&follow, &x, &names, 1, None, level);
+
+    // The same model within each stratum (effect modification: e.g. a larger hazard ratio at
+    // low eGFR). Covariates constant within a stratum are left out by `cox_json`.
+    let p = names.len();
+    let strata_cox: Vec<Value> = by_stratum
+        .iter()
+        .map(|(name, ms)| {
+            let follow: Vec<FollowUp> = ms
+                .iter()
+                .map(|m| FollowUp::new(m.days, m.cause == 1))
+                .collect();
+            let mut xs = Vec::with_capacity(ms.len() * p);
+            for m in ms {
+                xs.push(f64::from(u8::from(m.exposed)));
+                xs.extend_from_slice(&m.covariates);
             }
-            ok
+            let mut fit = cox_json(&follow, &xs, &names, 1, None, level);
+            fit["stratum"] = json!(name);
+            fit
         })
         .collect();
-    let xk: Vec<f64> = (0..members.len())
-        .flat_map(|i| keep.iter().map(move |&j| (i, j)))
-        .map(|(i, j)| x[i * p + j])
-        .collect();
-    let nk: Vec<&str> = keep.iter().map(|&j| names[j]).collect();
-    let cox = kcohort_stats::cox::fit(
-        &kcohort_stats::cox::CoxData {
-            follow_up: &follow,
-            covariates: &xk,
-            names: &nk,
-            strata: None,
-            cluster: None,
-        },
-        &kcohort_stats::cox::CoxOptions {
-            level,
-            ..Default::default()
-        },
-    );
-    let cox = match cox {
-        Ok(f) => json!({
-            "events": f.n_events,
-            "left_out": dropped,
-            "coefficients": f.coefficients.iter().map(|c| json!({
-                "name": c.name, "hazard_ratio": c.hazard_ratio,
-                "interval": interval(&c.hazard_ratio_interval), "p_value": c.p_value,
-            })).collect::<Vec<_>>(),
-        }),
-        Err(e) => json!({ "error": e.to_string() }),
+
+    // Time-varying exposure: counting-process rows (entry, exit] split where the time on drug
+    // ends, so each member is `on drug` up to era end + grace and `off drug` after it. The
+    // contrast is time on the exposure drug against time on the comparator drug; time off
+    // either drug is its own category. Robust variance clustered by member.
+    let time_varying_rows = |with_off: bool| {
+        let (mut follow, mut x, mut cluster) = (Vec::new(), Vec::new(), Vec::new());
+        for (id, m) in members.iter().enumerate() {
+            let on_until = m.on_drug_days.min(m.days);
+            let mut row = |f: FollowUp, on_exposure: bool, off: bool| {
+                follow.push(f);
+                x.push(f64::from(u8::from(on_exposure)));
+                if with_off {
+                    x.push(f64::from(u8::from(off)));
+                }
+                x.extend_from_slice(&m.covariates);
+                cluster.push(id as u64);
+            };
+            row(
+                FollowUp::new(on_until, m.cause == 1 && m.days <= on_until),
+                m.exposed,
+                false,
+            );
+            if with_off && m.days > on_until {
+                row(
+                    FollowUp::with_entry(on_until, m.days, m.cause == 1),
+                    false,
+                    true,
+                );
+            }
+        }
+        (follow, x, cluster)
     };
+    const ON: &str = "on exposure drug (time-varying)";
+    const OFF: &str = "off drug (either arm)";
+    let mut tv_names = vec![ON, OFF];
+    tv_names.extend_from_slice(COVARIATES);
+    let (f, x, c) = time_varying_rows(true);
+    let mut time_varying = cox_json(&f, &x, &tv_names, 1, Some(&c), level);
+    // Without an estimable hazard off drug (e.g. no episode in time off either drug), the
+    // off-drug time is censored instead: an as-treated model on the same rows.
+    let off_left_out = time_varying["left_out"]
+        .as_array()
+        .is_some_and(|l| l.iter().any(|v| v == OFF));
+    if off_left_out {
+        tv_names.remove(1);
+        let (f, x, c) = time_varying_rows(false);
+        time_varying = cox_json(&f, &x, &tv_names, 1, Some(&c), level);
+        time_varying["note"] = json!(
+            "time off either drug had no estimable hazard, so it is censored (on-drug time only)"
+        );
+    }
 
     Ok(json!({
         "horizon_days": horizon,
@@ -383,7 +454,110 @@ pub fn analyse(members: &[Member], horizon: f64, level: ConfidenceLevel) -> anyh
         "strata": strata,
         "rate_ratio": rate.as_ref().map(|r| json!({"estimate": r.estimate, "interval": interval(&r.interval)})),
         "cox": cox,
+        "strata_cox": strata_cox,
+        "time_varying_cox": time_varying,
+        "curves": curves,
     }))
+}
+
+/// At most about `max` points of a rising step curve for drawing: the last point of each of
+/// `max` equal time bins (the curve's value at each bin's end is kept exactly).
+fn thin(curve: &[(f64, f64)], max: usize) -> Vec<(f64, f64)> {
+    let Some(&(last, _)) = curve.last() else {
+        return Vec::new();
+    };
+    if curve.len() <= max || last <= 0.0 {
+        return curve.to_vec();
+    }
+    let bin = |t: f64| ((t / last) * max as f64).floor() as usize;
+    let mut out: Vec<(f64, f64)> = Vec::with_capacity(max + 2);
+    for (i, &(t, v)) in curve.iter().enumerate() {
+        let next_bin = curve.get(i + 1).map(|&(u, _)| bin(u));
+        if i == 0 || next_bin != Some(bin(t)) {
+            out.push((t, v));
+        }
+    }
+    out
+}
+
+/// A Cox fit as JSON. The first `keep_first` columns always stay; any other column that cannot
+/// be estimated is left out and reported: a constant column, and a yes/no column whose events
+/// all fall on one side (monotone likelihood: a hazard ratio of 0 or infinity).
+fn cox_json(
+    follow: &[FollowUp],
+    x: &[f64],
+    names: &[&str],
+    keep_first: usize,
+    cluster: Option<&[u64]>,
+    level: ConfidenceLevel,
+) -> Value {
+    let (n, p) = (follow.len(), names.len());
+    let column = |i: usize, j: usize| x[i * p + j];
+    let n_events = follow.iter().filter(|f| f.event).count();
+    let mut dropped = Vec::new();
+    let keep: Vec<usize> = (0..p)
+        .filter(|&j| {
+            let varies = (0..n).any(|i| column(i, j) != column(0, j));
+            let binary = (0..n).all(|i| column(i, j) == 0.0 || column(i, j) == 1.0);
+            let events_with = (0..n)
+                .filter(|&i| follow[i].event && column(i, j) == 1.0)
+                .count();
+            let separated = binary && (events_with == 0 || events_with == n_events);
+            let ok = j < keep_first || (varies && !separated);
+            if !ok {
+                dropped.push(names[j]);
+            }
+            ok
+        })
+        .collect();
+    // A covariate that still cannot be estimated in the fit (separation within risk sets, or
+    // collinearity) is left out too, and the model fitted again; never the first columns.
+    let mut keep = keep;
+    let fit = loop {
+        let xk: Vec<f64> = (0..n)
+            .flat_map(|i| keep.iter().map(move |&j| (i, j)))
+            .map(|(i, j)| column(i, j))
+            .collect();
+        let nk: Vec<&str> = keep.iter().map(|&j| names[j]).collect();
+        let fit = kcohort_stats::cox::fit(
+            &kcohort_stats::cox::CoxData {
+                follow_up: follow,
+                covariates: &xk,
+                names: &nk,
+                strata: None,
+                cluster,
+            },
+            &kcohort_stats::cox::CoxOptions {
+                level,
+                ..Default::default()
+            },
+        );
+        if let Err(kcohort_stats::StatsError::NotEstimableCovariate { covariate, .. }) = &fit
+            && let Some(pos) = keep
+                .iter()
+                .position(|&j| names[j] == covariate.as_str() && j >= keep_first)
+        {
+            dropped.push(names[keep[pos]]);
+            keep.remove(pos);
+            continue;
+        }
+        break fit;
+    };
+    match fit {
+        Ok(f) => json!({
+            "rows": f.n_rows,
+            "events": f.n_events,
+            "left_out": dropped,
+            "robust": f.robust_variance.is_some(),
+            "coefficients": f.coefficients.iter().map(|c| json!({
+                "name": c.name, "hazard_ratio": c.hazard_ratio,
+                "interval": interval(&c.hazard_ratio_interval),
+                "p_value": c.p_value,
+                "log_std_error": c.robust_std_error.unwrap_or(c.std_error),
+            })).collect::<Vec<_>>(),
+        }),
+        Err(e) => json!({ "error": e.to_string() }),
+    }
 }
 
 fn fmt_ratio(v: &Value) -> String {
@@ -409,13 +583,23 @@ pub fn run(args: CompareArgs) -> anyhow::Result<()> {
     result["comparator"] = json!(args.comparator);
     result["strata_by"] = json!(args.strata);
     result["caution"] = json!(
-        "For research and drug-safety review on de-identified data; not for decisions about individual patients. Observational estimates: confounding beyond the adjusted covariates remains possible."
+        "For research and drug-safety review on de-identified data; not for decisions about individual patients, and it defers to local policy and licensed practice. Observational estimates: confounding beyond the adjusted covariates remains possible."
     );
     if let Some(dir) = &args.out {
         std::fs::create_dir_all(dir).with_context(|| format!("cannot create {}", dir.display()))?;
         std::fs::write(
             dir.join("compare.json"),
             serde_json::to_string_pretty(&result)? + "\n",
+        )?;
+        let follow_up = match args.follow_up {
+            FollowUpKind::Itt => "intention to treat",
+            FollowUpKind::AsTreated => "as treated",
+        };
+        std::fs::write(
+            dir.join("compare.html"),
+            kcohort_report::compare_page::render_compare(&super::compare_view::view(
+                &result, follow_up,
+            )),
         )?;
         let mut w = csv::Writer::from_path(dir.join("arms.csv"))?;
         w.write_record([
@@ -509,6 +693,19 @@ pub fn run(args: CompareArgs) -> anyhow::Result<()> {
                 }
             } else {
                 println!("  Cox model: {}", result["cox"]["error"]);
+            }
+            match result["time_varying_cox"]["coefficients"]
+                .as_array()
+                .and_then(|c| c.first())
+            {
+                Some(c) => println!(
+                    "  time-varying Cox, on exposure vs on comparator drug {}",
+                    fmt_ratio(&json!({"estimate": c["hazard_ratio"], "interval": c["interval"]}))
+                ),
+                None => println!(
+                    "  time-varying Cox model: {}",
+                    result["time_varying_cox"]["error"]
+                ),
             }
             println!("  {}", result["caution"].as_str().unwrap_or(""));
         }

@@ -1,7 +1,9 @@
 //! The commands of `kcohort` and their arguments.
 
 mod bench;
+mod causes;
 mod compare;
+mod compare_view;
 pub mod derive;
 mod ingest;
 mod init_study;
@@ -47,6 +49,8 @@ pub enum Command {
     Run(run::RunArgs),
     /// Compare new users of a drug class with new users of a comparator class: risks, ratios, Cox.
     Compare(compare::CompareArgs),
+    /// Causes of confirmed episodes (shares) with new-user risk ratios per drug class (HTML, CSV).
+    Causes(causes::CausesArgs),
     /// The drug-linked event listing of a drug-safety committee for one suspect class (HTML, CSV).
     Listing(listing::ListingArgs),
     /// Run one read-only SQL query over a store's tables and derived tables.
@@ -66,6 +70,7 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Compare(args) => compare::run(args),
         Command::Tables(args) => tables::run(args),
         Command::Listing(args) => listing::run(args),
+        Command::Causes(args) => causes::run(args),
         Command::Report(args) => report::run(args),
         Command::Run(args) => run::run(args),
         Command::Stats(args) => stats::run(args),
