@@ -31,6 +31,10 @@
 --   restarted_at           the start of the first later era of the class (a rechallenge), if
 --                          any.
 --
+-- No ORDER BY: `kcohort listing` orders its rows; sorting the wide joined rows here made
+-- DataFusion 55 reserve tens of GB for one batch (its size estimate of the string views) on a
+-- 1,000,000-patient store.
+--
 -- Row-level output for the committee: pseudonymous ids only (patient_id, episode_id, era_id as
 -- in the store); it must stay inside the committee.
 --
@@ -119,5 +123,4 @@ LEFT JOIN episode_kidney k ON k.episode_id = s.episode_id
 LEFT JOIN listing_treatments t ON t.episode_id = s.episode_id
 LEFT JOIN episode_outcomes o ON o.episode_id = s.episode_id
 LEFT JOIN listing_after_onset a
-    ON a.episode_id = s.episode_id AND a.suspect_class = s.suspect_class
-ORDER BY s.suspect_class, e.onset_at, s.episode_id;
+    ON a.episode_id = s.episode_id AND a.suspect_class = s.suspect_class;

@@ -36,8 +36,12 @@
 --                             n_other_classes their number;
 --       baseline_potassium    the latest used potassium result in the baseline window.
 --
--- PARAMETERS: $dispense_grace_days, $ckd_egfr_below, $cohort_horizon_days, $cohort_baseline_days,
--- $cohort_recent_aki_days, $extract_end; the views of earlier definitions (potassium_results).
+-- PARAMETERS: $dispense_grace_days, $ckd_egfr_below (and its text, $ckd_egfr_below_text),
+-- $cohort_horizon_days, $cohort_baseline_days, $cohort_recent_aki_days, $extract_end; the views of earlier definitions (potassium_results).
+
+-- No ORDER BY (readers order what they read): sorting these wide joined rows made DataFusion 55
+-- reserve several GB for one batch (its size estimate of shared string-view buffers) on a
+-- 1,000,000-patient store.
 
 CREATE VIEW cohort_entries AS
 SELECT
@@ -156,8 +160,8 @@ SELECT
     coalesce(kdigo_gfr_category(k.baseline_egfr), 'unknown') AS egfr_category,
     CASE
         WHEN k.baseline_egfr IS NULL THEN 'unknown'
-        WHEN k.baseline_egfr < $ckd_egfr_below THEN 'below ' || t.threshold
-        ELSE t.threshold || ' or more'
+        WHEN k.baseline_egfr < $ckd_egfr_below THEN 'below ' || $ckd_egfr_below_text
+        ELSE $ckd_egfr_below_text || ' or more'
     END AS egfr_band,
     coalesce(k.recent_aki, false) AS recent_aki,
     d.patient_id IS NOT NULL AS diabetes,
@@ -165,14 +169,8 @@ SELECT
     coalesce(x.n_other_classes, CAST(0 AS BIGINT)) AS n_other_classes,
     b.baseline_potassium
 FROM cohort_followed f
-CROSS JOIN (
-    SELECT CASE WHEN $ckd_egfr_below = floor($ckd_egfr_below)
-                THEN CAST(CAST($ckd_egfr_below AS BIGINT) AS VARCHAR)
-                ELSE CAST($ckd_egfr_below AS VARCHAR) END AS threshold
-) t
 LEFT JOIN cohort_baseline_kidney k ON k.drug_class = f.drug_class AND k.patient_id = f.patient_id
 LEFT JOIN cohort_diabetes d ON d.drug_class = f.drug_class AND d.patient_id = f.patient_id
 LEFT JOIN cohort_other_classes x ON x.drug_class = f.drug_class AND x.patient_id = f.patient_id
 LEFT JOIN cohort_baseline_potassium b
-    ON b.drug_class = f.drug_class AND b.patient_id = f.patient_id
-ORDER BY f.drug_class, f.patient_id;
+    ON b.drug_class = f.drug_class AND b.patient_id = f.patient_id;

@@ -23,7 +23,19 @@ pub struct Definition {
     pub file: &'static str,
     /// The file's text.
     pub sql: &'static str,
+    /// DataFusion settings for this definition's query only (key, value).
+    pub settings: &'static [(&'static str, &'static str)],
 }
+
+/// The episode machine's window has no PARTITION BY (one ordered pass): after it, DataFusion's
+/// round-robin repartition copies every row's struct output once more to feed two partitions,
+/// which cost more than the rest of the episode query (5.8 s → 3.1 s without it on 5.3 M
+/// potassium results, BENCHMARKS.md). Other definitions keep the default: their scans gain
+/// from it (exposure_eras ran 25 s → 31 s with it off everywhere).
+const ROUND_ROBIN_OFF: &[(&str, &str)] = &[(
+    "datafusion.optimizer.enable_round_robin_repartition",
+    "false",
+)];
 
 /// Every definition, in the order they run.
 pub const DEFINITIONS: &[Definition] = &[
@@ -31,71 +43,85 @@ pub const DEFINITIONS: &[Definition] = &[
         table: "episodes",
         file: "episodes.sql",
         sql: include_str!("../../../queries/episodes.sql"),
+        settings: ROUND_ROBIN_OFF,
     },
     Definition {
         table: "potassium_quality",
         file: "potassium_quality.sql",
         sql: include_str!("../../../queries/potassium_quality.sql"),
+        settings: &[],
     },
     Definition {
         table: "exposure_eras",
         file: "exposure_eras.sql",
         sql: include_str!("../../../queries/exposure_eras.sql"),
+        settings: &[],
     },
     Definition {
         table: "kidney_function",
         file: "kidney_function.sql",
         sql: include_str!("../../../queries/kidney_function.sql"),
+        settings: &[],
     },
     Definition {
         table: "lab_conditions",
         file: "lab_conditions.sql",
         sql: include_str!("../../../queries/lab_conditions.sql"),
+        settings: &[],
     },
     Definition {
         table: "episode_kidney",
         file: "episode_kidney.sql",
         sql: include_str!("../../../queries/episode_kidney.sql"),
+        settings: &[],
     },
     Definition {
         table: "episode_causes",
         file: "episode_causes.sql",
         sql: include_str!("../../../queries/episode_causes.sql"),
+        settings: &[],
     },
     Definition {
         table: "episode_cause_summary",
         file: "episode_cause_summary.sql",
         sql: include_str!("../../../queries/episode_cause_summary.sql"),
+        settings: &[],
     },
     Definition {
         table: "episode_treatments",
         file: "episode_treatments.sql",
         sql: include_str!("../../../queries/episode_treatments.sql"),
+        settings: &[],
     },
     Definition {
         table: "episode_outcomes",
         file: "episode_outcomes.sql",
         sql: include_str!("../../../queries/episode_outcomes.sql"),
+        settings: &[],
     },
     Definition {
         table: "drug_event_listing",
         file: "drug_event_listing.sql",
         sql: include_str!("../../../queries/drug_event_listing.sql"),
+        settings: &[],
     },
     Definition {
         table: "unit_months",
         file: "unit_months.sql",
         sql: include_str!("../../../queries/unit_months.sql"),
+        settings: &[],
     },
     Definition {
         table: "episode_register",
         file: "episode_register.sql",
         sql: include_str!("../../../queries/episode_register.sql"),
+        settings: &[],
     },
     Definition {
         table: "new_user_cohorts",
         file: "new_user_cohorts.sql",
         sql: include_str!("../../../queries/new_user_cohorts.sql"),
+        settings: &[],
     },
 ];
 
@@ -150,12 +176,21 @@ pub async fn plan_definition(
         options
             .verify_plan(&plan)
             .map_err(|e| query_error(name, e))?;
-        let frame = ctx
-            .execute_logical_plan(plan)
-            .await
-            .map_err(|e| query_error(name, e))?;
         if last {
-            query = Some(frame);
+            // The query runs later, with the session state it is given here.
+            let mut state = ctx.state();
+            for (key, value) in definition.settings {
+                state
+                    .config_mut()
+                    .options_mut()
+                    .set(key, value)
+                    .map_err(|e| query_error(name, e))?;
+            }
+            query = Some(DataFrame::new(state, plan));
+        } else {
+            ctx.execute_logical_plan(plan)
+                .await
+                .map_err(|e| query_error(name, e))?;
         }
     }
     query.ok_or_else(|| EngineError::Definition {

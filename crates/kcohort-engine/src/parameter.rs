@@ -356,6 +356,11 @@ fn context_parameters(p: &mut Parameters, study: &Study) {
     ] {
         p.insert(name, ParamValue::Number(value));
     }
+    // The eGFR threshold as text for labels ('below 45'): Rust's shortest form of the number.
+    p.insert(
+        "ckd_egfr_below_text",
+        ParamValue::Text(a.ckd_egfr_below.to_string()),
+    );
     for (analyte, codes) in study.lab_loinc_sets() {
         p.insert(&format!("{analyte}_loinc"), ParamValue::Codes(codes));
     }

@@ -197,6 +197,7 @@ fn a_definition_holds_only_views_and_one_query() {
             table: "t",
             file: "t.sql",
             sql,
+            settings: &[],
         };
         let result = runtime.block_on(plan_definition(&ctx, &definition, &parameters));
         assert!(
