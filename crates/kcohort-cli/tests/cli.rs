@@ -103,6 +103,20 @@ fn user_errors_exit_with_1_and_say_what_to_fix() {
         "{}",
         text(&missing.stderr)
     );
+
+    // An unexposed comparator is refused with the reason and what to use instead.
+    let unexposed = kcohort()
+        .args(["compare", "--store"])
+        .arg(dir.path().join("s"))
+        .args(["--exposure", "ace_inhibitor", "--comparator", "unexposed"])
+        .output()
+        .unwrap();
+    assert_eq!(unexposed.status.code(), Some(1));
+    let stderr = text(&unexposed.stderr);
+    assert!(
+        stderr.contains("immortal time") && stderr.contains("--comparator calcium_channel_blocker"),
+        "{stderr}"
+    );
 }
 
 #[test]

@@ -36,7 +36,8 @@ pub struct CompareArgs {
     /// Drug class of the exposed arm (a class of the study, e.g. ace_inhibitor).
     #[arg(long)]
     pub exposure: String,
-    /// Drug class of the comparator arm (active comparator, e.g. calcium_channel_blocker).
+    /// Drug class of the comparator arm (active comparator, e.g. calcium_channel_blocker). An
+    /// unexposed arm is refused on purpose: see `kcohort compare --comparator unexposed`.
     #[arg(long)]
     pub comparator: String,
     /// Horizon of the risks, e.g. 30d or 90 (days).
@@ -117,6 +118,15 @@ pub fn read_members(args: &CompareArgs) -> anyhow::Result<Vec<Member>> {
     );
     if x == c {
         bail!("--exposure and --comparator are the same class `{x}`");
+    }
+    if c == "unexposed" {
+        bail!(
+            "--comparator unexposed is not supported: people who do not start a drug have no \
+             start date to follow them from, and choosing one invites immortal time and \
+             confounding by the reason for prescribing\nhint: compare with new users of \
+             another class given for the same reason (an active comparator), e.g. \
+             --comparator calcium_channel_blocker for RAAS inhibitors"
+        );
     }
     let (days, event) = match args.follow_up {
         FollowUpKind::Itt => ("itt_days", "itt_event"),
