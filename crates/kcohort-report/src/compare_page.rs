@@ -286,11 +286,11 @@ impl RiskChart {
             for s in [steps(&a.km_curve, end), steps(&a.cif_curve, end)] {
                 top = s.iter().map(|p| p.1).fold(top, f64::max);
             }
+            // The chart draws the estimates, not their intervals (those are in the arms table):
+            // the axis fits the curves.
             for e in [&a.km_risk, &a.cumulative_incidence].into_iter().flatten() {
-                for v in [Some(e.estimate), e.upper].into_iter().flatten() {
-                    if v.is_finite() {
-                        top = top.max(v.clamp(0.0, 1.0) * 100.0);
-                    }
+                if e.estimate.is_finite() {
+                    top = top.max(e.estimate.clamp(0.0, 1.0) * 100.0);
                 }
             }
         }
