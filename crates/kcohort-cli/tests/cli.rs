@@ -423,3 +423,39 @@ fn listing_of_a_hand_made_case_field_by_field() {
         assert!(text(&out.stderr).contains(says), "{}", text(&out.stderr));
     }
 }
+
+/// `kcohort sql ... | head -2`: the reader closes the pipe early; kcohort stops quietly (exit 0,
+/// no panic or error message), whether the write fails in `println!` (table format) or in the
+/// CSV writer. Two million rows are far more than a pipe buffers, so the write does fail.
+#[test]
+fn a_reader_that_stops_early_is_not_an_error() {
+    use std::io::{BufRead, BufReader};
+    use std::process::Stdio;
+    let dir = tempfile::tempdir().unwrap();
+    let store = dir.path().join("store");
+    assert!(ingest(&base_fixture(), &store, &[]).status.success());
+    for format in ["table", "csv"] {
+        let mut child = kcohort()
+            .args(["sql", "--store"])
+            .arg(&store)
+            .args(["--format", format, "--max-rows", "3000000"])
+            .arg("SELECT value FROM generate_series(1, 2000000) AS t(value)")
+            .stdout(Stdio::piped())
+            .stderr(Stdio::piped())
+            .spawn()
+            .unwrap();
+        let mut first = String::new();
+        BufReader::new(child.stdout.take().unwrap())
+            .read_line(&mut first)
+            .unwrap();
+        assert!(!first.is_empty());
+        // The reader is gone now (its end of the pipe was dropped above).
+        let out = child.wait_with_output().unwrap();
+        let stderr = text(&out.stderr);
+        assert!(out.status.success(), "{format}: {:?} {stderr}", out.status);
+        assert!(
+            !stderr.contains("panicked") && !stderr.contains("error"),
+            "{format}: {stderr}"
+        );
+    }
+}
