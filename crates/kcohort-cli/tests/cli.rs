@@ -117,6 +117,20 @@ fn user_errors_exit_with_1_and_say_what_to_fix() {
         stderr.contains("immortal time") && stderr.contains("--comparator calcium_channel_blocker"),
         "{stderr}"
     );
+
+    // A comparator the study does not have: named, with the classes it has.
+    let causes = kcohort()
+        .args(["causes", "--store"])
+        .arg(dir.path().join("s"))
+        .args(["--comparator", "ccb"])
+        .output()
+        .unwrap();
+    assert_eq!(causes.status.code(), Some(1));
+    let stderr = text(&causes.stderr);
+    assert!(
+        stderr.contains("`ccb` is not a drug class") && stderr.contains("calcium_channel_blocker"),
+        "{stderr}"
+    );
 }
 
 #[test]

@@ -111,6 +111,18 @@ fn risk_ratio_cell(
 pub fn run(args: CausesArgs) -> anyhow::Result<()> {
     let study = super::derive::load_study(args.study.as_deref())?;
     let horizon = parse_days(&args.horizon)?;
+    if !study.drug_classes.contains_key(&args.comparator) {
+        anyhow::bail!(
+            "--comparator `{}` is not a drug class of the study; classes: {}",
+            args.comparator,
+            study
+                .drug_classes
+                .keys()
+                .cloned()
+                .collect::<Vec<_>>()
+                .join(", ")
+        );
+    }
     let level = ConfidenceLevel::NINETY_FIVE;
     let r = rows(
         &args.store,
