@@ -1,4 +1,5 @@
-//! Writing the report's flat tables as CSV and Parquet files.
+//! Where a command's output folder goes, and writing the report's flat tables as CSV and
+//! Parquet files.
 
 use anyhow::Context;
 use arrow_array::{ArrayRef, Float64Array, RecordBatch, StringArray};
@@ -6,6 +7,20 @@ use arrow_schema::{DataType, Field, Schema};
 use kcohort_report::tables::{Table, Value};
 use std::path::Path;
 use std::sync::Arc;
+
+/// The output folder, created: `out` when given, otherwise `default_name` beside the store.
+pub fn output_folder(
+    store: &Path,
+    out: Option<&Path>,
+    default_name: &str,
+) -> anyhow::Result<std::path::PathBuf> {
+    let dir = out.map_or_else(
+        || store.parent().unwrap_or(Path::new(".")).join(default_name),
+        Path::to_path_buf,
+    );
+    std::fs::create_dir_all(&dir).with_context(|| format!("cannot create {}", dir.display()))?;
+    Ok(dir)
+}
 
 /// `<name>.csv` and `<name>.parquet` in `dir`.
 pub fn write_table(dir: &Path, table: &Table) -> anyhow::Result<()> {

@@ -109,20 +109,9 @@ fn risk_ratio_cell(
 }
 
 pub fn run(args: CausesArgs) -> anyhow::Result<()> {
-    let study = super::derive::load_study(args.study.as_deref())?;
+    let study = super::study_file::load_study(args.study.as_deref())?;
     let horizon = parse_days(&args.horizon)?;
-    if !study.drug_classes.contains_key(&args.comparator) {
-        anyhow::bail!(
-            "--comparator `{}` is not a drug class of the study; classes: {}",
-            args.comparator,
-            study
-                .drug_classes
-                .keys()
-                .cloned()
-                .collect::<Vec<_>>()
-                .join(", ")
-        );
-    }
+    super::study_file::drug_class(&study, "--comparator", &args.comparator)?;
     let level = ConfidenceLevel::NINETY_FIVE;
     let r = rows(
         &args.store,
@@ -208,13 +197,11 @@ pub fn run(args: CausesArgs) -> anyhow::Result<()> {
             ),
         ],
     };
-    let out = args.out.clone().unwrap_or_else(|| {
-        args.store
-            .parent()
-            .unwrap_or(Path::new("."))
-            .join(format!("causes-{}", args.comparator))
-    });
-    std::fs::create_dir_all(&out).with_context(|| format!("cannot create {}", out.display()))?;
+    let out = crate::report_files::output_folder(
+        &args.store,
+        args.out.as_deref(),
+        &format!("causes-{}", args.comparator),
+    )?;
     std::fs::write(out.join("causes.html"), render_cause_table(&view))?;
     std::fs::write(out.join("causes.csv"), cause_table_csv(&view))?;
     println!(

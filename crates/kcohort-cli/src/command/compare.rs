@@ -364,36 +364,29 @@ pub fn analyse(members: &[Member], horizon: f64, level: ConfidenceLevel) -> anyh
     })
     .ok();
 
-    // Cox: exposure plus the baseline covariates, one row per member.
-    let follow: Vec<FollowUp> = members
-        .iter()
-        .map(|m| FollowUp::new(m.days, m.cause == 1))
-        .collect();
-    let mut x = Vec::new();
-    for m in members {
-        x.push(f64::from(u8::from(m.exposed)));
-        x.extend_from_slice(&m.covariates);
-    }
+    // Cox: exposure plus the baseline covariates, one row per member; then the same model
+    // within each stratum (effect modification: e.g. a larger hazard ratio at low eGFR).
+    // Covariates constant within a stratum are left out by `cox_json`.
     let mut names = vec!["exposure"];
     names.extend_from_slice(COVARIATES);
-    let cox = cox_json(&follow, &x, &names, 1, None, level);
-
-    // The same model within each stratum (effect modification: e.g. a larger hazard ratio at
-    // low eGFR). Covariates constant within a stratum are left out by `cox_json`.
-    let p = names.len();
+    let baseline_cox = |ms: &[&Member]| {
+        let follow: Vec<FollowUp> = ms
+            .iter()
+            .map(|m| FollowUp::new(m.days, m.cause == 1))
+            .collect();
+        let mut x = Vec::with_capacity(ms.len() * names.len());
+        for m in ms {
+            x.push(f64::from(u8::from(m.exposed)));
+            x.extend_from_slice(&m.covariates);
+        }
+        cox_json(&follow, &x, &names, 1, None, level)
+    };
+    let all: Vec<&Member> = members.iter().collect();
+    let cox = baseline_cox(&all);
     let strata_cox: Vec<Value> = by_stratum
         .iter()
         .map(|(name, ms)| {
-            let follow: Vec<FollowUp> = ms
-                .iter()
-                .map(|m| FollowUp::new(m.days, m.cause == 1))
-                .collect();
-            let mut xs = Vec::with_capacity(ms.len() * p);
-            for m in ms {
-                xs.push(f64::from(u8::from(m.exposed)));
-                xs.extend_from_slice(&m.covariates);
-            }
-            let mut fit = cox_json(&follow, &xs, &names, 1, None, level);
+            let mut fit = baseline_cox(ms);
             fit["stratum"] = json!(name);
             fit
         })

@@ -4,7 +4,6 @@
 use anyhow::{Context, bail};
 use clap::Args;
 use kcohort_engine::EngineOptions;
-use kcohort_model::study::Study;
 use std::path::PathBuf;
 
 #[derive(Debug, Args)]
@@ -47,20 +46,8 @@ fn parse_bytes(text: &str) -> anyhow::Result<usize> {
     Ok((value * (1u64 << shift) as f64) as usize)
 }
 
-/// The study file, or the defaults without one.
-pub fn load_study(path: Option<&std::path::Path>) -> anyhow::Result<Study> {
-    Ok(match path {
-        Some(path) => {
-            let text = std::fs::read_to_string(path)
-                .with_context(|| format!("cannot read the study file {}", path.display()))?;
-            Study::from_toml(&text).with_context(|| format!("study file {}", path.display()))?
-        }
-        None => Study::default(),
-    })
-}
-
 pub fn run(args: DeriveArgs) -> anyhow::Result<()> {
-    let study = load_study(args.study.as_deref())?;
+    let study = super::study_file::load_study(args.study.as_deref())?;
     let options = EngineOptions {
         memory_limit_bytes: parse_bytes(&args.memory_limit)?,
         target_partitions: 0,

@@ -65,7 +65,7 @@ const COLUMNS: &[(&str, &str)] = &[
         "lowest glucose after insulin (mg/dL)",
     ),
     ("rebound", "rebound"),
-    ("died_within_window", "died within 30 days"),
+    ("died_within_window", "died within {death_days} days"),
     ("dechallenge", "suspect drug afterwards"),
     ("restarted_local", "restarted"),
 ];
@@ -105,7 +105,7 @@ const DEFINITIONS: &[(&str, &str)] = &[
     ),
     (
         "suspect drug afterwards",
-        "dechallenge read from the recorded exposure 7 days after onset: continued, stopped, ended before onset, died, or not observable (the extract ends first); a dispensing covers its days of supply",
+        "dechallenge read from the recorded exposure {dechallenge_days} days after onset: continued, stopped, ended before onset, died, or not observable (the extract ends first); a dispensing covers its days of supply",
     ),
     (
         "restarted",
@@ -161,12 +161,7 @@ pub fn read_listing(
             "onset_local" => local("onset_us")?,
             "era_start_local" => local("era_start_us")?,
             "restarted_local" => local("restarted_us")?,
-            "baseline_egfr" => r
-                .number(name)?
-                .into_iter()
-                .map(|v| number_text(v, 1))
-                .collect(),
-            "peak_value" => r
+            "baseline_egfr" | "peak_value" => r
                 .number(name)?
                 .into_iter()
                 .map(|v| number_text(v, 1))
@@ -242,19 +237,8 @@ fn summary(rows: &[Vec<String>]) -> Vec<(String, String)> {
 }
 
 pub fn run(args: ListingArgs) -> anyhow::Result<()> {
-    let study = super::derive::load_study(args.study.as_deref())?;
-    let Some(class) = study.drug_classes.get(&args.class) else {
-        bail!(
-            "--class `{}` is not a drug class of the study; classes: {}",
-            args.class,
-            study
-                .drug_classes
-                .keys()
-                .cloned()
-                .collect::<Vec<_>>()
-                .join(", ")
-        );
-    };
+    let study = super::study_file::load_study(args.study.as_deref())?;
+    let class = super::study_file::drug_class(&study, "--class", &args.class)?;
     if !class.is_cause() {
         bail!(
             "--class `{}` is a comparator-only class (cause = false in the study): it is never a suspect",
@@ -281,10 +265,17 @@ pub fn run(args: ListingArgs) -> anyhow::Result<()> {
         midnight(from),
         midnight(next_day),
     )?;
-    let (death_days, dechallenge_days) = (
-        study.outcomes.death_within_days,
-        study.outcomes.dechallenge_days,
-    );
+    // The headings and definitions name the study's windows.
+    let windows = |text: &str| {
+        text.replace(
+            "{death_days}",
+            &study.outcomes.death_within_days.to_string(),
+        )
+        .replace(
+            "{dechallenge_days}",
+            &study.outcomes.dechallenge_days.to_string(),
+        )
+    };
     let view = ListingView {
         class: args.class.clone(),
         class_label: class.label.clone(),
@@ -295,29 +286,18 @@ pub fn run(args: ListingArgs) -> anyhow::Result<()> {
         notice: NOTICE.into(),
         cautions: vec![CAUTION.into()],
         summary: summary(&rows),
-        // The headings and definitions name the default windows; say the study's instead.
-        columns: COLUMNS
-            .iter()
-            .map(|(_, h)| h.replace("30 days", &format!("{death_days} days")))
-            .collect(),
+        columns: COLUMNS.iter().map(|(_, h)| windows(h)).collect(),
         rows,
         definitions: DEFINITIONS
             .iter()
-            .map(|(a, b)| {
-                (
-                    (*a).to_string(),
-                    b.replace("7 days after", &format!("{dechallenge_days} days after")),
-                )
-            })
+            .map(|(a, b)| ((*a).to_string(), windows(b)))
             .collect(),
     };
-    let out = args.out.clone().unwrap_or_else(|| {
-        args.store
-            .parent()
-            .unwrap_or(Path::new("."))
-            .join(format!("listing-{}-{from}-{to}", args.class))
-    });
-    std::fs::create_dir_all(&out).with_context(|| format!("cannot create {}", out.display()))?;
+    let out = crate::report_files::output_folder(
+        &args.store,
+        args.out.as_deref(),
+        &format!("listing-{}-{from}-{to}", args.class),
+    )?;
     let html = out.join("listing.html");
     std::fs::write(&html, render_listing(&view))
         .with_context(|| format!("cannot write {}", html.display()))?;

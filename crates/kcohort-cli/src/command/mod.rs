@@ -12,6 +12,7 @@ pub mod report;
 mod run;
 pub mod sql;
 mod stats;
+mod study_file;
 mod synth;
 mod tables;
 

@@ -321,13 +321,11 @@ pub fn write_report(
     };
     let report = build_report(&input, &options)
         .with_context(|| format!("building the report for {month}"))?;
-    let out = settings.out.clone().unwrap_or_else(|| {
-        store
-            .parent()
-            .unwrap_or(Path::new("."))
-            .join(format!("report-{month}"))
-    });
-    std::fs::create_dir_all(&out).with_context(|| format!("cannot create {}", out.display()))?;
+    let out = crate::report_files::output_folder(
+        store,
+        settings.out.as_deref(),
+        &format!("report-{month}"),
+    )?;
     let write = |name: &str, text: String| {
         let path = out.join(name);
         std::fs::write(&path, text).with_context(|| format!("cannot write {}", path.display()))
